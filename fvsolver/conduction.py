@@ -1,0 +1,263 @@
+"""The conduction problem: stored energy and heat rate of every cell, and their Jacobian.
+
+For cell P, with e(T) the specific internal energy,
+
+.. math:: \\frac{\\mathrm d}{\\mathrm dt}\\left(\\rho_P V_P e(T_P)\\right)
+          = \\sum_f F_f + \\sum_b A_b q_b + S_P V_P
+
+The stepper advances ``capacity`` (m = rho V e) against ``evaluate`` (the right-hand side).
+"""
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass
+
+import numpy as np
+import scipy.sparse as sp
+
+from fvsolver.boundary import BoundaryData, PatchCondition, _evaluate, compile_boundary
+from fvsolver.discretisation import Stencil, build_stencil
+from fvsolver.errors import CaseError
+from fvsolver.kernels import conduction as kern
+from fvsolver.materials import REFERENCE_TEMPERATURE, Material
+from fvsolver.mesh.core import Mesh
+
+SURFACE_ITERATIONS = 50
+
+
+@dataclass(frozen=True)
+class VolumetricSource:
+    """Heat generated inside the body, W/m3 (a number or f(centres (n, 2), time))."""
+
+    power_density: float | Callable
+    material: str | None = None
+
+
+@dataclass(frozen=True)
+class Evaluation:
+    """The heat rate at one state.
+
+    Attributes
+    ----------
+    rate : (n_cells,) W, net heat into each cell
+    boundary_jacobian : (n_cells,) W/K, d(boundary heat into P)/dT_P (<= 0)
+    conductance : (n_faces,) W/K, two-point face conductances
+    surface_temperature : (n_boundary,) K
+    boundary_heat : (n_boundary,) W, heat into the body through each boundary face
+    source_heat : float, W
+    """
+
+    rate: np.ndarray
+    boundary_jacobian: np.ndarray
+    conductance: np.ndarray
+    surface_temperature: np.ndarray
+    boundary_heat: np.ndarray
+    source_heat: float
+
+    @property
+    def heat_in(self) -> float:
+        return float(self.boundary_heat.sum() + self.source_heat)
+
+    @property
+    def gross_heat(self) -> float:
+        return float(np.abs(self.boundary_heat).sum() + abs(self.source_heat))
+
+
+class ConductionProblem:
+    """Transient conduction on a mesh with materials, boundary conditions and sources.
+
+    Parameters
+    ----------
+    mesh : Mesh
+    materials : dict
+        Material tag to :class:`~fvsolver.materials.Material`; every tag of the mesh needs one.
+    conditions : list of PatchCondition
+    sources : list of VolumetricSource
+    nonorthogonal_correction : bool
+        Apply the deferred correction where the mesh is not orthogonal.
+    """
+
+    def __init__(
+        self,
+        mesh: Mesh,
+        materials: dict[str, Material],
+        conditions: list[PatchCondition],
+        sources: tuple = (),
+        nonorthogonal_correction: bool = True,
+    ) -> None:
+        missing = [m for m in mesh.material_names if m not in materials]
+        if missing:
+            raise CaseError(
+                f"materials: no properties for mesh material(s) {missing} (got {sorted(materials)}); "
+                "give every material tag of the mesh its properties"
+            )
+        self.mesh = mesh
+        self.materials = tuple(materials[name] for name in mesh.material_names)
+        self.boundary: BoundaryData = compile_boundary(mesh, conditions)
+        self.stencil: Stencil = build_stencil(mesh, self.boundary.symmetry)
+        self.sources = tuple(sources)
+        for k, s in enumerate(self.sources):
+            if s.material is not None and s.material not in mesh.material_names:
+                raise CaseError(
+                    f"sources[{k}].material: got {s.material!r}, expected one of {list(mesh.material_names)}"
+                )
+        self.n = mesh.n_cells
+        self.correct = bool(nonorthogonal_correction) and (
+            self.stencil.nonorthogonal
+            or bool(np.any(np.abs(self.stencil.boundary_offset) > 1e-10 * np.abs(self.stencil.boundary_distance)[:, None]))
+        )
+        self._density = np.array([m.density for m in self.materials])[mesh.cell_material]
+        self._constant_k = all(m.conductivity.is_constant for m in self.materials)
+        self._constant_c = all(m.heat_capacity.is_constant for m in self.materials)
+        self._surface_guess: np.ndarray | None = None
+        self._k_constant = None
+        self._k_constant = self.conductivity(np.full(self.n, REFERENCE_TEMPERATURE)) if self._constant_k else None
+        # boundary faces of flux kind, grouped by condition, for vectorised term sums
+        self._flux_groups = [
+            (c, f) for c, f in zip(self.boundary.conditions, self.boundary.faces) if c.kind == "flux"
+        ]
+        self._dirichlet_groups = [
+            (c, f) for c, f in zip(self.boundary.conditions, self.boundary.faces) if c.kind == "temperature"
+        ]
+        g = np.empty(mesh.n_faces)
+        if self._constant_k:
+            kern.face_conductance(self._k_constant, mesh.owner, mesh.neighbour, self.stencil.dist_owner,
+                                  self.stencil.dist_neighbour, self.stencil.geometry, g)
+        self._g_constant = g if self._constant_k else None
+
+    # -- properties -------------------------------------------------------------------------
+    def _per_cell(self, T: np.ndarray, attribute: str, integral: bool = False) -> np.ndarray:
+        out = np.empty(self.n)
+        for i, m in enumerate(self.materials):
+            sel = self.mesh.cell_material == i
+            fn = getattr(m, attribute)
+            out[sel] = fn.integral(T[sel]) if integral else fn.value(T[sel])
+        return out
+
+    def conductivity(self, T: np.ndarray) -> np.ndarray:
+        """(n_cells,) W/(m K)."""
+        if self._constant_k and self._k_constant is not None:
+            return self._k_constant
+        return self._per_cell(T, "conductivity")
+
+    @property
+    def linear(self) -> bool:
+        """True when the heat rate is affine in T and the stored energy linear in T."""
+        return self._constant_k and self._constant_c and self.boundary.linear
+
+    @property
+    def exact_jacobian(self) -> bool:
+        """True when one Newton iteration solves a step exactly (linear, no deferred terms)."""
+        return self.linear and not self.correct
+
+    @property
+    def constant_jacobian(self) -> bool:
+        """True when the Jacobian depends on the step (alpha0, dt) only."""
+        return self.linear and not self.boundary.coefficients_vary
+
+    # -- the stepper's interface ----------------------------------------------------------------
+    def capacity(self, T: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Stored energy m = rho V e(T) (J, from 273.15 K) and dm/dT = rho V c(T) (J/K)."""
+        rv = self._density * self.mesh.cell_volumes
+        if self._constant_c:
+            c = np.array([m.heat_capacity.coefficients[0] for m in self.materials])[self.mesh.cell_material]
+            return rv * c * (T - REFERENCE_TEMPERATURE), rv * c
+        return rv * self._per_cell(T, "heat_capacity", integral=True), rv * self._per_cell(T, "heat_capacity")
+
+    def _surface(self, T, time, grad, k):
+        """Surface temperatures, heat fluxes and their T_P derivatives on every boundary face."""
+        mesh, st = self.mesh, self.stencil
+        bc = mesh.boundary_cell
+        kappa = k[bc] / st.boundary_distance
+        t_foot = T[bc]
+        if grad is not None:
+            t_foot = t_foot + grad[bc, 0] * st.boundary_offset[:, 0] + grad[bc, 1] * st.boundary_offset[:, 1]
+        t_s = t_foot.copy()
+        q = np.zeros(mesh.n_boundary)
+        dq_dtp = np.zeros(mesh.n_boundary)
+        for cond, faces in self._dirichlet_groups:
+            t_s[faces] = _evaluate(cond.terms[0].temperature, mesh.boundary_centres[faces], time)
+            q[faces] = kappa[faces] * (t_s[faces] - t_foot[faces])
+            dq_dtp[faces] = -kappa[faces]
+        for cond, faces in self._flux_groups:
+            if not cond.terms:
+                continue
+            kf, tf, xc = kappa[faces], t_foot[faces], mesh.boundary_centres[faces]
+            ts = tf.copy() if self._surface_guess is None else self._surface_guess[faces].copy()
+            for _ in range(SURFACE_ITERATIONS):
+                g0 = np.zeros_like(ts)
+                g1 = np.zeros_like(ts)
+                for term in cond.terms:
+                    a, b = term.heat_flux(ts, time, xc)
+                    g0 += a
+                    g1 += b
+                step = (kf * (ts - tf) - g0) / (kf - g1)
+                ts = ts - step
+                if np.all(np.abs(step) <= 1e-13 * np.abs(ts)):
+                    break
+            g0 = np.zeros_like(ts)
+            g1 = np.zeros_like(ts)
+            for term in cond.terms:
+                a, b = term.heat_flux(ts, time, xc)
+                g0 += a
+                g1 += b
+            t_s[faces] = ts
+            q[faces] = kf * (ts - tf)
+            dq_dtp[faces] = kf * g1 / (kf - g1)
+        return t_s, q, dq_dtp
+
+    def evaluate(self, T: np.ndarray, time: float) -> Evaluation:
+        """Heat rate into every cell at temperature ``T`` (K) and ``time`` (s)."""
+        mesh, st = self.mesh, self.stencil
+        k = self.conductivity(T)
+        if self._g_constant is not None:
+            g = self._g_constant
+        else:
+            g = np.empty(mesh.n_faces)
+            kern.face_conductance(k, mesh.owner, mesh.neighbour, st.dist_owner, st.dist_neighbour, st.geometry, g)
+        rate = np.zeros(self.n)
+        kern.face_flux_sum(T, mesh.owner, mesh.neighbour, g, rate)
+        grad = None
+        if self.correct:
+            grad = np.zeros((self.n, 2))
+            t_s = self._surface_guess if self._surface_guess is not None else T[mesh.boundary_cell]
+            for _ in range(SURFACE_ITERATIONS):
+                kern.cell_gradients(T, mesh.owner, mesh.neighbour, st.lsq_owner, st.lsq_neighbour,
+                                    mesh.boundary_cell, st.lsq_boundary, t_s, grad)
+                t_new, q, dq = self._surface(T, time, grad, k)
+                change = np.max(np.abs(t_new - t_s)) if len(t_s) else 0.0
+                t_s = t_new
+                self._surface_guess = t_s
+                if change <= 1e-12 * max(1.0, float(np.max(np.abs(t_s)))):
+                    break
+            kf = g / st.geometry
+            kern.correction_flux_sum(grad, mesh.owner, mesh.neighbour, kf, st.weight_owner, st.tangent, rate)
+        else:
+            t_s, q, dq = self._surface(T, time, None, k)
+            if not self.boundary.linear:
+                self._surface_guess = t_s
+        area = mesh.boundary_areas
+        boundary_heat = area * q
+        rate += np.bincount(mesh.boundary_cell, boundary_heat, self.n)
+        bjac = np.bincount(mesh.boundary_cell, area * dq, self.n)
+        source_heat = 0.0
+        for s in self.sources:
+            sel = slice(None) if s.material is None else mesh.cell_material == mesh.material_names.index(s.material)
+            centres = mesh.cell_centres[sel]
+            power = _evaluate(s.power_density, centres, time) * mesh.cell_volumes[sel]
+            rate[sel] += power
+            source_heat += float(power.sum())
+        return Evaluation(rate, bjac, g, t_s, boundary_heat, source_heat)
+
+    def jacobian(self, alpha0: float, dt: float, dm: np.ndarray, ev: Evaluation) -> sp.csr_matrix:
+        """J = alpha0 dm/dT - dt dF/dT (two-point part; the deferred correction is left out)."""
+        st = self.stencil
+        data = np.empty_like(st.pattern.data)
+        diag = alpha0 * dm - dt * ev.boundary_jacobian
+        kern.fill_jacobian(data, st.diag_pos, st.owner_pos, st.neighbour_pos, self.mesh.owner,
+                           self.mesh.neighbour, diag, ev.conductance, dt)
+        return sp.csr_matrix((data, st.pattern.indices, st.pattern.indptr), shape=st.pattern.shape)
+
+    def balance_groups(self) -> dict[str, slice]:
+        """Which entries of the state make up each conserved total."""
+        return {"energy": slice(0, self.n)}

@@ -1,0 +1,391 @@
+"""Implicit time stepping: backward Euler and variable-step BDF2, adaptive or fixed steps.
+
+A problem gives the conserved content m(y) and the rate F(y, t) with
+dm/dt = F.  Each step solves, by Newton's method,
+
+.. math:: \\alpha_0 m(y^{n+1}) + \\alpha_1 m(y^n) + \\alpha_2 m(y^{n-1}) = \\Delta t\\,F(y^{n+1}, t^{n+1})
+
+(BDF2: :math:`\\alpha_0 = (1+2\\omega)/(1+\\omega)`, :math:`\\alpha_1 = -(1+\\omega)`,
+:math:`\\alpha_2 = \\omega^2/(1+\\omega)`, :math:`\\omega = \\Delta t_n/\\Delta t_{n-1}`; backward Euler:
+1, -1, 0).  Because the scheme is written for m, the totals of m balance exactly: per step,
+:math:`\\Delta M^{n+1} = W^{n+1}` with the scheme's own quadrature of the inflow
+:math:`W^{n+1} = (\\Delta t\\,Q^{n+1} + \\alpha_2 W^n)/\\alpha_0`, which the stepper checks.
+
+The error estimate compares the corrector with an extrapolating predictor (Milne's device).
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from fvsolver.errors import CaseError, SolverError
+from fvsolver.linear import factorise, solve
+
+SCHEMES = ("backward_euler", "bdf2")
+
+
+@dataclass
+class Counters:
+    """Work done so far."""
+
+    steps: int = 0
+    rejected: int = 0
+    newton_iterations: int = 0
+    factorisations: int = 0
+    evaluations: int = 0
+    newton_failures: int = 0
+
+
+@dataclass(frozen=True)
+class StepperOptions:
+    """Numerical options of the time stepper.
+
+    Parameters
+    ----------
+    scheme : {"backward_euler", "bdf2"}
+    adaptive : bool, steps from the error estimate (else fixed ``initial_step``)
+    initial_step : float, s
+    tolerance : float, absolute local error allowed per step on each unknown (K for temperature)
+    relative_tolerance : float
+    min_step, max_step : float, s
+    max_growth : float, largest ratio of successive steps (BDF2 stays zero-stable below 2.4)
+    newton_tolerance : float, absolute change of the unknowns that ends the Newton loop
+    max_newton_iterations : int
+    """
+
+    scheme: str = "bdf2"
+    adaptive: bool = True
+    initial_step: float = 1.0
+    tolerance: float = 1e-2
+    relative_tolerance: float = 0.0
+    min_step: float = 1e-9
+    max_step: float = math.inf
+    max_growth: float = 2.0
+    newton_tolerance: float = 1e-9
+    max_newton_iterations: int = 30
+
+    def validate(self, where: str = "numerics") -> None:
+        if self.scheme not in SCHEMES:
+            raise CaseError(f"{where}.scheme: got {self.scheme!r}, expected one of {SCHEMES}")
+        for name in ("initial_step", "tolerance", "min_step", "max_step", "newton_tolerance"):
+            v = getattr(self, name)
+            if not (isinstance(v, (int, float)) and v > 0):
+                raise CaseError(f"{where}.{name}: got {v!r}, expected a positive number")
+        if not 1.0 < self.max_growth < 2.4:
+            raise CaseError(f"{where}.max_growth: got {self.max_growth!r}, expected a value in (1, 2.4)")
+        if self.min_step > self.initial_step:
+            raise CaseError(
+                f"{where}.min_step: got {self.min_step!r} > initial_step {self.initial_step!r}; lower it"
+            )
+
+
+@dataclass
+class _History:
+    t: list = field(default_factory=list)      # newest first
+    y: list = field(default_factory=list)
+    m: list = field(default_factory=list)
+
+
+class TimeStepper:
+    """Advance ``problem`` from ``y0`` at ``t0`` to ``t_end``.
+
+    Parameters
+    ----------
+    problem : object with ``n``, ``capacity(y)``, ``evaluate(y, t)``, ``jacobian(a0, dt, dm, ev)``,
+        ``balance_groups()`` and the flags ``exact_jacobian``, ``constant_jacobian``.
+    y0 : (n,) initial state
+    t0, t_end : float, s
+    options : StepperOptions
+    stop_times : sequence of float, times the steps must land on exactly (outputs)
+
+    Attributes
+    ----------
+    status : {"running", "finished", "failed"}
+    message : str
+    t, y : current time and state
+    counters : Counters
+    balance_error : dict, relative balance error of the last step for each conserved total
+    """
+
+    def __init__(self, problem, y0, t0: float, t_end: float, options: StepperOptions | None = None,
+                 stop_times=()):
+        self.options = options or StepperOptions()
+        self.options.validate()
+        if not t_end > t0:
+            raise CaseError(f"end_time: got {t_end!r}, expected a time after the start {t0!r}")
+        self.problem = problem
+        self.t_end = float(t_end)
+        self.t = float(t0)
+        self.y = np.array(y0, dtype=float)
+        if self.y.shape != (problem.n,) or not np.all(np.isfinite(self.y)):
+            raise CaseError(f"initial state: expected {problem.n} finite values (got shape {self.y.shape})")
+        self.stop_times = np.unique(np.asarray([s for s in stop_times if t0 < s < t_end], dtype=float))
+        self.status = "running"
+        self.message = ""
+        self.counters = Counters()
+        self.dt = float(min(self.options.initial_step, self.options.max_step))
+        self.last_dt = 0.0
+        self.order = 1
+        self.balance_error: dict[str, float] = {}
+        self.cumulative_inflow: dict[str, float] = {}
+        self._groups = problem.balance_groups()
+        m0, _ = problem.capacity(self.y)
+        self._history = _History([self.t], [self.y.copy()], [m0])
+        self._dts: list[float] = []           # newest first
+        self._inflow: dict[str, float] = {g: 0.0 for g in self._groups}
+        self._lu_cache: dict = {}
+        self._f0: np.ndarray | None = None
+        self._landing: float | None = None
+        self._gross: dict[str, float] = {}
+        self.last_evaluation = None
+
+    # -- public contract -------------------------------------------------------------------
+    def step(self) -> bool:
+        """Take one accepted step (retrying rejected ones).  Returns False once not running."""
+        if self.status != "running":
+            return False
+        opt = self.options
+        while True:
+            dt = self._limit(self.dt)
+            try:
+                result = self._try_step(dt)
+            except SolverError as exc:
+                self.counters.newton_failures += 1
+                result = None
+                reason = str(exc)
+            else:
+                reason = "Newton's method did not converge"
+            if result is None:
+                self.dt = dt / 4.0
+                if self.dt < opt.min_step:
+                    self.status = "failed"
+                    self.message = (f"at t = {self.t:.6g} s the step fell below min_step "
+                                    f"{opt.min_step:g} s: {reason}")
+                    return False
+                continue
+            y_new, m_new, err, ev, order, w_new, alpha0 = result
+            if opt.adaptive and err > 1.0:
+                self.counters.rejected += 1
+                self.dt = dt * min(0.9, max(0.1, 0.9 * err ** (-1.0 / (order + 1))))
+                if self.dt < opt.min_step:
+                    self.status = "failed"
+                    self.message = f"at t = {self.t:.6g} s the error estimate needs steps below min_step"
+                    return False
+                continue
+            break
+        landing = self._landing
+        self._accept(dt, y_new, m_new, ev, order, w_new)
+        if opt.adaptive:
+            factor = opt.max_growth if err == 0.0 else min(opt.max_growth, max(0.2, 0.9 * err ** (-1.0 / (order + 1))))
+            if 1.0 <= factor < 1.25:
+                factor = 1.0  # keep the step (and its factorisation) unless growth is worth it
+            proposal = min(dt * factor, opt.max_step)
+            # a step shortened to land on a stop time does not shrink the nominal step
+            self.dt = proposal if landing is None else (max(self.dt, proposal) if factor >= 1 else min(self.dt, proposal))
+        if landing is not None and landing == self.t_end:
+            self.status = "finished"
+        return self.status == "running"
+
+    def run(self) -> None:
+        """Step until finished; raise SolverError on failure."""
+        while self.step():
+            pass
+        if self.status == "failed":
+            raise SolverError(self.message)
+
+    def dense(self, t: float) -> np.ndarray:
+        """State at a time inside the last step, by the scheme's interpolating polynomial."""
+        h = self._history
+        if len(h.t) < 2:
+            return h.y[0].copy()
+        pts = min(len(h.t), self.order + 1)
+        ts, ys = h.t[:pts], h.y[:pts]
+        out = np.zeros_like(ys[0])
+        for i in range(pts):
+            li = 1.0
+            for j in range(pts):
+                if j != i:
+                    li *= (t - ts[j]) / (ts[i] - ts[j])
+            out += li * ys[i]
+        return out
+
+    # -- internals --------------------------------------------------------------------------
+    def _limit(self, dt: float) -> float:
+        self._landing = None
+        t_next = self.t + dt
+        stop = self.t_end
+        if self.stop_times.size:
+            later = self.stop_times[self.stop_times > self.t * (1 + 1e-14) + 1e-300]
+            if later.size:
+                stop = min(stop, later[0])
+        if t_next >= stop - 1e-9 * dt:
+            self._landing = stop
+            remaining = stop - self.t
+            # keep the nominal step (and its factorisation) when it lands within round-off
+            return dt if abs(remaining - dt) <= 1e-9 * dt else remaining
+        if t_next > stop - 0.2 * dt:  # avoid a sliver of a step before the stop
+            return 0.5 * (stop - self.t)
+        return dt
+
+    def _coefficients(self, dt: float):
+        n_hist = len(self._history.t)
+        use_bdf2 = self.options.scheme == "bdf2" and n_hist >= 2 and (not self.options.adaptive or n_hist >= 3)
+        if not use_bdf2:
+            return 1, 1.0, -1.0, 0.0
+        w = dt / self._dts[0]
+        return 2, (1 + 2 * w) / (1 + w), -(1 + w), w * w / (1 + w)
+
+    def _predict(self, dt: float, order: int):
+        """Extrapolated state and the factor turning |corrector - predictor| into the error."""
+        h = self._history
+        if len(h.t) == 1:
+            if self._f0 is None:
+                ev = self.problem.evaluate(self.y, self.t)
+                self.counters.evaluations += 1
+                _, dm = self.problem.capacity(self.y)
+                self._f0 = ev.rate / dm
+            return self.y + dt * self._f0, 0.5
+        h0, y0, y1 = dt, h.y[0], h.y[1]
+        h1 = self._dts[0]
+        if order == 1 or len(h.t) < 3:
+            w = h0 / h1
+            return y0 + w * (y0 - y1), w / (2 * w + 1)
+        h2 = self._dts[1]
+        y2 = h.y[2]
+        t = h.t[0] + h0
+        ts = (h.t[0], h.t[1], h.t[2])
+        pred = np.zeros_like(y0)
+        for i, yi in enumerate((y0, y1, y2)):
+            li = 1.0
+            for j in range(3):
+                if j != i:
+                    li *= (t - ts[j]) / (ts[i] - ts[j])
+            pred += li * yi
+        delta = h0**2 * (h0 + h1) ** 2 / (6 * (2 * h0 + h1))
+        ep = h0 * (h0 + h1) * (h0 + h1 + h2) / 6
+        return pred, delta / (delta + ep)
+
+    def _lu(self, alpha0, dt, dm, ev, key_ok: bool):
+        key = (alpha0, dt)
+        if key_ok and key in self._lu_cache:
+            return self._lu_cache[key]
+        lu = factorise(self.problem.jacobian(alpha0, dt, dm, ev))
+        self.counters.factorisations += 1
+        if key_ok:
+            if len(self._lu_cache) > 4:
+                self._lu_cache.clear()
+            self._lu_cache[key] = lu
+        return lu
+
+    def _try_step(self, dt: float):
+        p, opt, h = self.problem, self.options, self._history
+        order, a0, a1, a2 = self._coefficients(dt)
+        t_new = self.t + dt
+        hist = a1 * h.m[0] + (a2 * h.m[1] if a2 else 0.0)
+        y_pred, est_factor = self._predict(dt, order) if opt.adaptive else (h.y[0], 0.0)
+        y = y_pred.copy()
+        lu = None
+        prev_norm = math.inf
+        converged = False
+        for it in range(opt.max_newton_iterations):
+            ev = p.evaluate(y, t_new)
+            self.counters.evaluations += 1
+            m, dm = p.capacity(y)
+            residual = a0 * m + hist - dt * ev.rate
+            if lu is None or not p.constant_jacobian and it > 0 and rate_poor:
+                lu = self._lu(a0, dt, dm, ev, p.constant_jacobian)
+            delta = solve(lu, -residual)
+            self.counters.newton_iterations += 1
+            if not np.all(np.isfinite(delta)):
+                return None
+            y += delta
+            norm = float(np.max(np.abs(delta)))
+            rate_poor = norm > 0.3 * prev_norm
+            prev_norm = norm
+            if p.exact_jacobian:
+                converged = True
+                # affine problem: the rate and content at the new state follow exactly
+                m = m + dm * delta
+                break
+            if norm <= opt.newton_tolerance:
+                converged = True
+                break
+        if not converged:
+            return None
+        if p.exact_jacobian:
+            m_new = m
+            inflow = self._affine_inflow(ev, delta)
+        else:
+            ev = p.evaluate(y, t_new)
+            self.counters.evaluations += 1
+            m_new, _ = p.capacity(y)
+            inflow = {g: ev.heat_in for g in self._groups}
+            self._gross = {g: ev.gross_heat for g in self._groups}
+        if not np.all(np.isfinite(y)):
+            return None
+        w_new = {}
+        for g, sl in self._groups.items():
+            w_new[g] = (dt * inflow[g] + a2 * self._inflow[g]) / a0
+            stored = float(m_new[sl].sum() - h.m[0][sl].sum())
+            scale = max(abs(stored), dt * self._gross[g], 1e-300)
+            self.balance_error[g] = abs(stored - w_new[g]) / scale
+        err = 0.0
+        if opt.adaptive:
+            est = est_factor * np.abs(y - y_pred)
+            err = float(np.max(est / (opt.tolerance + opt.relative_tolerance * np.abs(y))))
+        return y, m_new, err, ev, order, w_new, a0
+
+    def _affine_inflow(self, ev, delta):
+        """Heat in at the new state of an affine problem: Q + sum_b dQ_b/dT_P delta_P."""
+        q = ev.heat_in + float(np.dot(ev.boundary_jacobian, delta))
+        gross = ev.gross_heat + float(np.abs(ev.boundary_jacobian * delta).sum())
+        self._gross = {g: gross for g in self._groups}
+        return {g: q for g in self._groups}
+
+    def _accept(self, dt, y_new, m_new, ev, order, w_new):
+        h = self._history
+        self.last_dt = dt
+        self.order = order
+        self.t = self.t + dt
+        self.y = y_new
+        h.t.insert(0, self.t)
+        h.y.insert(0, y_new.copy())
+        h.m.insert(0, m_new)
+        del h.t[3:], h.y[3:], h.m[3:]
+        self._dts.insert(0, dt)
+        del self._dts[3:]
+        self._inflow = w_new
+        for g, w in w_new.items():
+            self.cumulative_inflow[g] = self.cumulative_inflow.get(g, 0.0) + w
+        self.counters.steps += 1
+        self.last_evaluation = ev
+
+
+def solve_steady(problem, y_guess, time: float = 0.0, tolerance: float = 1e-10, max_iterations: int = 300):
+    """Steady state F(y) = 0 by Newton's method (deferred terms converge by iteration).
+
+    Returns
+    -------
+    y : (n,) steady state
+    evaluation : the problem's evaluation at ``y``
+    iterations : int
+    """
+    y = np.array(y_guess, dtype=float)
+    lu = None
+    for it in range(1, max_iterations + 1):
+        ev = problem.evaluate(y, time)
+        if lu is None or not problem.linear:
+            _, dm = problem.capacity(y)
+            lu = factorise(problem.jacobian(0.0, 1.0, dm, ev))
+        delta = solve(lu, ev.rate)
+        y += delta
+        if float(np.max(np.abs(delta))) <= tolerance or (problem.exact_jacobian and it == 1):
+            if problem.exact_jacobian:
+                ev = problem.evaluate(y, time)
+            return y, ev, it
+    raise SolverError(
+        f"steady solve: no convergence in {max_iterations} Newton iterations (last change "
+        f"{float(np.max(np.abs(delta))):.3e}); check for a strongly nonlinear property or boundary condition"
+    )

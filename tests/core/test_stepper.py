@@ -1,0 +1,103 @@
+"""Time-stepper verification: temporal orders, adaptive control, stop times, steady state."""
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from fvsolver.boundary import FixedTemperature, PatchCondition
+from fvsolver.conduction import ConductionProblem, VolumetricSource
+from fvsolver.materials import Material, TemperatureFunction
+from fvsolver.stepper import StepperOptions, TimeStepper
+from tests.core.helpers import rectangle_mesh
+
+RHO, C, K, OMEGA = 1000.0, 1.0, 1.0, 1.0
+
+
+def exact(x, t):
+    """T = 300 + (1 + sin(omega t)/2) 10 x: linear in space, so the spatial error is zero."""
+    return 300.0 + (1.0 + 0.5 * np.sin(OMEGA * t)) * 10.0 * x[:, 0]
+
+
+def manufactured_problem(heat_capacity=None):
+    mesh = rectangle_mesh(8, 2)
+    cap = heat_capacity or TemperatureFunction.constant(C)
+    mat = Material("solid", RHO, TemperatureFunction.constant(K), cap)
+
+    def source(x, t):  # rho c(T) dT/dt, since the Laplacian of T vanishes
+        return RHO * cap.value(exact(x, t)) * 0.5 * OMEGA * np.cos(OMEGA * t) * 10.0 * x[:, 0]
+
+    conditions = [PatchCondition("left", (FixedTemperature(exact),)), PatchCondition("right", (FixedTemperature(exact),)),
+                  PatchCondition("bottom", ()), PatchCondition("top", ())]
+    return ConductionProblem(mesh, {"solid": mat}, conditions, (VolumetricSource(source),))
+
+
+def temporal_order(scheme, heat_capacity=None):
+    steps = np.array([0.1, 0.05, 0.025, 0.0125])
+    errors = []
+    for dt in steps:
+        problem = manufactured_problem(heat_capacity)
+        x = problem.mesh.cell_centres
+        stepper = TimeStepper(problem, exact(x, 0.0), 0.0, 2.0,
+                              StepperOptions(scheme=scheme, adaptive=False, initial_step=dt, newton_tolerance=1e-12))
+        stepper.run()
+        assert stepper.balance_error["energy"] < 1e-10
+        errors.append(np.abs(stepper.y - exact(x, 2.0)).max())
+    return np.polyfit(np.log(steps), np.log(errors), 1)[0], errors
+
+
+def test_backward_euler_is_first_order():
+    order, errors = temporal_order("backward_euler")
+    assert abs(order - 1.0) < 0.15 and errors[-1] < 0.05
+
+
+def test_bdf2_is_second_order():
+    order, errors = temporal_order("bdf2")
+    assert order >= 1.9 and errors[-1] < 5e-4
+
+
+def test_bdf2_is_second_order_with_temperature_dependent_heat_capacity():
+    cap = TemperatureFunction("polynomial", (-0.5, 0.005))
+    order, _ = temporal_order("bdf2", cap)
+    assert order >= 1.9
+
+
+@pytest.mark.parametrize("scheme, slope", [("backward_euler", 0.5), ("bdf2", 2.0 / 3.0)])
+def test_adaptive_error_falls_with_tolerance(scheme, slope):
+    """Per-step control of a local error ~ dt^(q+1) gives a global error ~ tol^(q/(q+1)).
+
+    Common practice (Hairer, Norsett & Wanner, Solving ODEs I, sec. II.4, from memory).
+    """
+    errors = []
+    tolerances = (1e-2, 1e-3, 1e-4)
+    for tol in tolerances:
+        problem = manufactured_problem()
+        x = problem.mesh.cell_centres
+        stepper = TimeStepper(problem, exact(x, 0.0), 0.0, 2.0,
+                              StepperOptions(scheme=scheme, tolerance=tol, initial_step=1e-3))
+        stepper.run()
+        errors.append(np.abs(stepper.y - exact(x, 2.0)).max())
+    assert errors[0] > errors[1] > errors[2]
+    observed = np.polyfit(np.log(tolerances), np.log(errors), 1)[0]
+    assert abs(observed - slope) < 0.15
+
+
+def test_steps_land_on_stop_times_and_end_time():
+    problem = manufactured_problem()
+    stops = [0.3, 0.77, 1.5]
+    stepper = TimeStepper(problem, exact(problem.mesh.cell_centres, 0.0), 0.0, 2.0,
+                          StepperOptions(initial_step=0.13), stop_times=stops)
+    seen = []
+    while stepper.step():
+        seen.append(stepper.t)
+    assert stepper.t == 2.0 and stepper.status == "finished"
+    for s in stops:
+        assert s in seen
+
+
+def test_fixed_step_reuses_one_factorisation_per_scheme_coefficient():
+    problem = manufactured_problem()
+    stepper = TimeStepper(problem, exact(problem.mesh.cell_centres, 0.0), 0.0, 2.0,
+                          StepperOptions(scheme="bdf2", adaptive=False, initial_step=0.1))
+    stepper.run()
+    assert stepper.counters.steps == 20
+    assert stepper.counters.factorisations == 2  # the backward-Euler start and the BDF2 matrix
