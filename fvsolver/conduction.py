@@ -261,3 +261,12 @@ class ConductionProblem:
     def balance_groups(self) -> dict[str, slice]:
         """Which entries of the state make up each conserved total."""
         return {"energy": slice(0, self.n)}
+
+
+def heat_flux_vectors(problem: ConductionProblem, T: np.ndarray, ev: Evaluation) -> np.ndarray:
+    """Cell heat-flux vectors q = -k grad T, (n_cells, 2) W/m2, from least-squares gradients."""
+    mesh, st = problem.mesh, problem.stencil
+    grad = np.zeros((problem.n, 2))
+    kern.cell_gradients(T, mesh.owner, mesh.neighbour, st.lsq_owner, st.lsq_neighbour, mesh.boundary_cell,
+                        st.lsq_boundary, ev.surface_temperature, grad)
+    return -problem.conductivity(T)[:, None] * grad

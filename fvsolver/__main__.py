@@ -1,0 +1,5 @@
+import sys
+
+from fvsolver.cli import main
+
+sys.exit(main())

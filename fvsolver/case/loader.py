@@ -1,0 +1,286 @@
+"""Read a TOML case, check it against the schema, fill defaults, and freeze it.
+
+Every problem is collected before anything runs and reported as
+``FILE:LINE: key.path: what is wrong (got VALUE, expected ...)``.
+"""
+from __future__ import annotations
+
+import copy
+import difflib
+import hashlib
+import math
+import re
+import tomllib
+from dataclasses import dataclass
+from pathlib import Path
+from types import MappingProxyType
+from typing import Any
+
+from fvsolver.case.schema import CASE, REQUIRED, Key
+from fvsolver.errors import CaseError
+
+_HEADER = re.compile(r"^\s*(\[\[?)\s*([^\]]+?)\s*\]\]?\s*(#.*)?$")
+_ASSIGN = re.compile(r"^\s*([A-Za-z0-9_\-\.\"' ]+?)\s*=\s*(.*)$")
+_INLINE_KEY = re.compile(r"([A-Za-z0-9_\-]+)\s*=")
+
+
+class CaseErrors(CaseError):
+    """All the problems found in one case file."""
+
+    def __init__(self, problems: list[str]):
+        self.problems = list(problems)
+        super().__init__("\n".join(self.problems))
+
+
+def line_map(text: str) -> dict[str, int]:
+    """Key path -> line number, for the subset of TOML case files use."""
+    lines: dict[str, int] = {}
+    current = ""
+    counts: dict[str, int] = {}
+    for number, raw in enumerate(text.splitlines(), start=1):
+        line = raw.strip()
+        if not line or line.startswith("#"):
+            continue
+        m = _HEADER.match(line)
+        if m and not _ASSIGN.match(line):
+            name = ".".join(p.strip().strip('"\'') for p in m.group(2).split("."))
+            if m.group(1) == "[[":
+                counts[name] = counts.get(name, 0) + 1
+                current = f"{name}[{counts[name] - 1}]"
+            else:
+                current = name
+            lines.setdefault(current, number)
+            continue
+        m = _ASSIGN.match(line)
+        if m:
+            key = ".".join(p.strip().strip('"\'') for p in m.group(1).split("."))
+            path = f"{current}.{key}" if current else key
+            lines.setdefault(path, number)
+            value = m.group(2)
+            if value.startswith("{"):
+                for sub in _INLINE_KEY.findall(value):
+                    lines.setdefault(f"{path}.{sub}", number)
+    return lines
+
+
+def _is_number(v: Any) -> bool:
+    return isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v)
+
+
+def _describe(key: Key) -> str:
+    if key.kind == "number":
+        parts = ["a number"]
+        if key.minimum is not None:
+            parts.append(f"{'>' if key.exclusive_minimum else '>='} {key.minimum:g}")
+        if key.maximum is not None:
+            parts.append(f"<= {key.maximum:g}")
+        return " ".join(parts) + (f" in {key.unit}" if key.unit else "")
+    if key.kind == "integer":
+        rng = f" >= {key.minimum:g}" if key.minimum is not None else ""
+        return "a whole number" + rng
+    if key.kind == "string":
+        return "one of " + ", ".join(repr(c) for c in key.choices) if key.choices else "a string"
+    return {"boolean": "true or false", "numbers": "an array of numbers", "strings": "an array of strings",
+            "table": "a table", "map": "a table of named tables", "tables": "an array of tables",
+            "property": "a positive number, {temperatures = [...], values = [...]} or {polynomial = [...]}"}[key.kind]
+
+
+class Validator:
+    """Walks the parsed TOML against the schema, collecting problems."""
+
+    def __init__(self, filename: str, lines: dict[str, int]):
+        self.filename = filename
+        self.lines = lines
+        self.problems: list[str] = []
+
+    def line_of(self, path: str) -> int:
+        while path:
+            if path in self.lines:
+                return self.lines[path]
+            path = path.rsplit(".", 1)[0] if "." in path else ""
+        return 1
+
+    def error(self, path: str, message: str, line_path: str | None = None) -> None:
+        self.problems.append(f"{self.filename}:{self.line_of(line_path or path)}: {path}: {message}")
+
+    def check(self, key: Key, value: Any, path: str) -> Any:
+        kind = key.kind
+        if kind == "number":
+            if not _is_number(value):
+                self.error(path, f"got {value!r}, expected {_describe(key)}")
+                return value
+            low, high = key.minimum, key.maximum
+            if low is not None and (value <= low if key.exclusive_minimum else value < low) or \
+                    high is not None and value > high:
+                self.error(path, f"got {value!r}, expected {_describe(key)}")
+            return float(value)
+        if kind == "integer":
+            if not isinstance(value, int) or isinstance(value, bool):
+                self.error(path, f"got {value!r}, expected {_describe(key)}")
+            elif key.minimum is not None and value < key.minimum or key.maximum is not None and value > key.maximum:
+                rng = f"{key.minimum:g}" if key.minimum == key.maximum else f"in [{key.minimum}, {key.maximum}]"
+                self.error(path, f"got {value!r}, expected {rng if key.maximum is not None else _describe(key)}")
+            return value
+        if kind == "string":
+            if not isinstance(value, str):
+                self.error(path, f"got {value!r}, expected {_describe(key)}")
+            elif key.choices and value not in key.choices:
+                close = difflib.get_close_matches(value, key.choices, n=1)
+                hint = f"; did you mean {close[0]!r}?" if close else ""
+                self.error(path, f"got {value!r}, expected {_describe(key)}{hint}")
+            return value
+        if kind == "boolean":
+            if not isinstance(value, bool):
+                self.error(path, f"got {value!r}, expected true or false")
+            return value
+        if kind in ("numbers", "strings"):
+            ok = isinstance(value, list) and all(
+                _is_number(v) if kind == "numbers" else isinstance(v, str) for v in value)
+            if not ok:
+                self.error(path, f"got {value!r}, expected {_describe(key)}")
+            return [float(v) for v in value] if ok and kind == "numbers" else value
+        if kind == "property":
+            return self._property(value, path)
+        if kind == "table":
+            return self._table(key, value, path)
+        if kind == "map":
+            if not isinstance(value, dict):
+                self.error(path, f"got {value!r}, expected {_describe(key)}")
+                return value
+            return {name: self.check(key.item, v, f"{path}.{name}") for name, v in value.items()}
+        if kind == "tables":
+            if not isinstance(value, list) or not all(isinstance(v, dict) for v in value):
+                self.error(path, f"got {value!r}, expected an array of tables ([[{path}]])")
+                return value
+            return [self.check(key.item, v, f"{path}[{i}]") for i, v in enumerate(value)]
+        raise AssertionError(kind)  # pragma: no cover
+
+    def _property(self, value: Any, path: str) -> Any:
+        if _is_number(value):
+            if value <= 0:
+                self.error(path, f"got {value!r}, expected a positive number")
+            return float(value)
+        if isinstance(value, dict) and set(value) == {"temperatures", "values"}:
+            t, v = value["temperatures"], value["values"]
+            good = (isinstance(t, list) and isinstance(v, list) and len(t) == len(v) >= 2
+                    and all(map(_is_number, t + v)) and all(b > a for a, b in zip(t, t[1:])) and min(v) > 0)
+            if not good:
+                self.error(path, f"got {value!r}, expected >= 2 increasing temperatures (K) with one positive "
+                                 "value each")
+            return value
+        if isinstance(value, dict) and set(value) == {"polynomial"}:
+            c = value["polynomial"]
+            if not (isinstance(c, list) and c and all(map(_is_number, c))):
+                self.error(path, f"got {value!r}, expected polynomial = [a0, a1, ...] (T in K)")
+            return value
+        self.error(path, f"got {value!r}, expected a positive number, {{temperatures = [...], values = [...]}} "
+                         "or {polynomial = [...]}")
+        return value
+
+    def _table(self, key: Key, value: Any, path: str) -> Any:
+        if not isinstance(value, dict):
+            self.error(path, f"got {value!r}, expected a table")
+            return value
+        names = {c.name: c for c in key.children}
+        out = {}
+        for name, v in value.items():
+            sub = f"{path}.{name}" if path else name
+            if name not in names:
+                close = difflib.get_close_matches(name, names, n=1, cutoff=0.6)
+                hint = f"; did you mean {close[0]!r}?" if close else ""
+                self.error(sub, f"unknown key (got {name!r}, expected one of {', '.join(names)}){hint}")
+                continue
+            out[name] = self.check(names[name], v, sub)
+        for name, child in names.items():
+            if name in out:
+                continue
+            sub = f"{path}.{name}" if path else name
+            if child.required:
+                self.error(sub, f"missing (expected {_describe(child)}"
+                                f"{' in ' + child.unit if child.unit and child.kind != 'number' else ''}); "
+                                f"add it: {child.doc}", line_path=path)
+            elif child.default is not None:
+                default = copy.deepcopy(child.default)
+                out[name] = self.check(child, default, sub) if child.kind == "table" else default
+        return out
+
+
+def _freeze(value: Any) -> Any:
+    if isinstance(value, dict):
+        return MappingProxyType({k: _freeze(v) for k, v in value.items()})
+    if isinstance(value, list):
+        return tuple(_freeze(v) for v in value)
+    return value
+
+
+def thaw(value: Any) -> Any:
+    """A plain (mutable) copy of frozen case data."""
+    if isinstance(value, MappingProxyType | dict):
+        return {k: thaw(v) for k, v in value.items()}
+    if isinstance(value, tuple | list):
+        return [thaw(v) for v in value]
+    return value
+
+
+@dataclass(frozen=True)
+class Case:
+    """A validated case with every default filled in (read-only).
+
+    Attributes
+    ----------
+    path : Path of the case file (None when built from a dict)
+    data : read-only mapping of the resolved case
+    text : the file's text
+    sha256 : hash of the resolved case, for resume checks and run records
+    """
+
+    path: Path | None
+    data: Any
+    text: str
+    sha256: str
+
+    def __getitem__(self, key: str) -> Any:
+        return self.data[key]
+
+    @property
+    def folder(self) -> Path:
+        return self.path.parent if self.path else Path.cwd()
+
+
+def validate_data(raw: dict, filename: str = "<case>", text: str = "") -> tuple[dict, list[str]]:
+    """Schema check and defaults, then the physical-consistency checks; returns (data, problems)."""
+    from fvsolver.case.consistency import check_consistency
+
+    v = Validator(filename, line_map(text))
+    data = v.check(CASE, raw, "")
+    if not v.problems:
+        check_consistency(data, v)
+    return data, v.problems
+
+
+def load_case(path: str | Path) -> Case:
+    """Read, validate and freeze a TOML case file.
+
+    Raises
+    ------
+    CaseErrors
+        With every problem found, each as ``FILE:LINE: key.path: message``.
+    """
+    from fvsolver.case.writer import dumps
+
+    path = Path(path)
+    try:
+        text = path.read_text(encoding="utf-8")
+    except OSError as exc:
+        raise CaseErrors([f"{path}:1: case file: cannot be read ({exc.strerror}); check the path"]) from exc
+    try:
+        raw = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        m = re.search(r"line (\d+)", str(exc))
+        raise CaseErrors([f"{path}:{m.group(1) if m else 1}: TOML syntax: {exc}; fix the syntax"]) from exc
+    data, problems = validate_data(raw, str(path), text)
+    if problems:
+        raise CaseErrors(problems)
+    data["_folder"] = str(path.parent.resolve())
+    resolved = dumps({k: v for k, v in data.items() if not k.startswith("_")})
+    return Case(path, _freeze(data), text, hashlib.sha256(resolved.encode()).hexdigest())

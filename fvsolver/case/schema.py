@@ -1,0 +1,227 @@
+"""The case-file schema, defined once: validation, defaults, documentation and JSON Schema.
+
+Every key has a kind, SI units, a range and a one-line description.  Angles are in
+degrees (their keys end in ``_deg``), temperatures in kelvin, everything else SI.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any
+
+SCHEMA_VERSION = 1
+
+
+class _Required:
+    def __repr__(self) -> str:
+        return "REQUIRED"
+
+
+REQUIRED: Any = _Required()
+
+
+@dataclass(frozen=True)
+class Key:
+    """One key of the case file.
+
+    kind: "number", "integer", "string", "boolean", "numbers" (array of numbers),
+    "strings", "table" (fixed children), "map" (free names, each an ``item`` table),
+    "tables" (array of ``item`` tables), "property" (a number or a T-table/polynomial).
+    """
+
+    name: str
+    kind: str
+    doc: str
+    unit: str = ""
+    default: Any = None
+    minimum: float | None = None
+    maximum: float | None = None
+    exclusive_minimum: bool = False
+    choices: tuple = ()
+    children: tuple = ()
+    item: "Key | None" = None
+
+    @property
+    def required(self) -> bool:
+        return self.default is REQUIRED
+
+
+def num(name, doc, unit="", default=None, minimum=None, maximum=None, positive=False) -> Key:
+    return Key(name, "number", doc, unit, default, 0.0 if positive else minimum, maximum, positive)
+
+
+def table(name, doc, *children, default=None) -> Key:
+    return Key(name, "table", doc, children=tuple(children), default=default)
+
+
+PROPERTY_DOC = "a number, or {temperatures = [K...], values = [...]}, or {polynomial = [a0, a1, ...]} in T/K"
+
+MATERIAL = table(
+    "material", "Properties of one material tag of the mesh.",
+    Key("density", "number", "Density.", "kg/m3", REQUIRED, 0.0, None, True),
+    Key("conductivity", "property", "Thermal conductivity, " + PROPERTY_DOC + ".", "W/(m K)", REQUIRED),
+    Key("heat_capacity", "property", "Specific heat capacity, " + PROPERTY_DOC + ".", "J/(kg K)", REQUIRED),
+)
+
+PATCH = table(
+    "patch", "Boundary condition of one mesh patch: one fixed_temperature, or symmetry, or any "
+    "sum of heat_flux, convection and radiation (none: insulated).",
+    num("fixed_temperature", "Surface temperature held fixed.", "K", positive=True),
+    Key("symmetry", "boolean", "Mirror plane: no heat crosses."),
+    Key("insulated", "boolean", "No heat crosses (the default of a patch with no terms)."),
+    num("heat_flux", "Heat flux into the body (a heater patch; negative draws heat out).", "W/m2"),
+    table("convection", "Convection to a fluid.",
+          num("h", "Heat-transfer coefficient.", "W/(m2 K)", REQUIRED, minimum=0.0),
+          num("ambient_temperature", "Fluid temperature.", "K", REQUIRED, positive=True)),
+    table("radiation", "Grey radiation to large surroundings.",
+          num("emissivity", "Surface emissivity.", "", REQUIRED, 0.0, 1.0),
+          num("surroundings_temperature", "Temperature of the surroundings.", "K", REQUIRED, positive=True)),
+)
+
+SOURCE = table(
+    "source", "Heat generated inside one material.",
+    Key("material", "string", "Material tag the source heats.", default=REQUIRED),
+    num("power_density", "Heat generated per volume.", "W/m3", REQUIRED),
+)
+
+SHAPES = {
+    "device_head": ("bulb_inner_radius", "glass_thickness", "cap_thickness", "cap_from_deg", "cap_to_deg",
+                    "neck_inner_radius", "neck_outer_radius", "neck_length"),
+    "two_layer_shell": ("inner_radius", "glass_thickness", "cap_thickness", "cap_from_deg", "cap_to_deg"),
+    "spherical_shell": ("inner_radius", "outer_radius"),
+    "solid_sphere": ("radius",),
+    "solid_cylinder": ("radius", "height"),
+    "hollow_cylinder": ("inner_radius", "outer_radius", "height"),
+    "slab": ("width", "height"),
+    "mesh_file": ("file",),
+}
+
+LENGTH_DOCS = {
+    "bulb_inner_radius": "Inner radius of the spherical glass bulb.",
+    "glass_thickness": "Thickness of the glass wall.",
+    "cap_thickness": "Thickness of the porous cap.",
+    "neck_inner_radius": "Inner (bore) radius of the neck tube.",
+    "neck_outer_radius": "Outer radius of the neck tube.",
+    "neck_length": "Length of the neck tube below the bulb.",
+    "inner_radius": "Inner radius.",
+    "outer_radius": "Outer radius.",
+    "radius": "Radius.",
+    "height": "Height (axial length).",
+    "width": "Width (x extent).",
+}
+
+GEOMETRY = table(
+    "geometry", "The body: a parametric shape or a mesh file from meshes/.",
+    Key("shape", "string", "Which body.", default=REQUIRED, choices=tuple(SHAPES)),
+    *(num(n, d, "m", positive=True) for n, d in LENGTH_DOCS.items()),
+    num("cap_from_deg", "Polar angle where the cap starts, from the top pole.", "deg", minimum=0.0, maximum=180.0),
+    num("cap_to_deg", "Polar angle where the cap ends, from the top pole.", "deg", minimum=0.0, maximum=180.0),
+    Key("coordinate_system", "string", "Coordinate system of a slab.", default="axisymmetric",
+        choices=("axisymmetric", "planar")),
+    Key("file", "string", "A VTU mesh written by `fvsolver mesh` (resolved in the case's folder or meshes/)."),
+    Key("material", "string", "Material tag of a one-material shape.", default="glass"),
+)
+
+MESH = table(
+    "mesh", "Cell counts of the parametric shapes (ignored for a mesh file).",
+    Key("glass_cells", "integer", "Cells through the glass wall.", default=4, minimum=2),
+    Key("cap_cells", "integer", "Cells through the porous cap.", default=4, minimum=2),
+    Key("polar_cells", "integer", "Cells along the bulb's meridian.", default=48, minimum=4),
+    Key("neck_cells", "integer", "Cells along the neck tube.", default=16, minimum=2),
+    Key("radial_cells", "integer", "Cells across a radius or wall (other shapes).", default=16, minimum=2),
+    Key("axial_cells", "integer", "Cells along z (cylinders and slabs).", default=16, minimum=1),
+    Key("refinement", "integer", "Multiply every cell count by this (mesh studies).", default=1, minimum=1),
+)
+
+NUMERICS = table(
+    "numerics", "Time stepping.",
+    Key("scheme", "string", "Time integration scheme.", default="bdf2", choices=("bdf2", "backward_euler")),
+    Key("adaptive", "boolean", "Choose steps from the local error estimate.", default=True),
+    num("tolerance", "Local temperature error allowed per step.", "K", 0.01, positive=True),
+    num("initial_step", "First (or, if not adaptive, every) time step.", "s", 0.1, positive=True),
+    num("min_step", "Smallest step before the run fails.", "s", 1e-6, positive=True),
+    num("max_step", "Largest step.", "s", 60.0, positive=True),
+)
+
+OUTPUT = table(
+    "output", "What the run writes.",
+    Key("field_times", "numbers", "Times to write the fields (VTU), s; the end time is always written.",
+        "s", []),
+    Key("field_count", "integer", "Or: this many evenly spaced field outputs.", default=5, minimum=0),
+)
+
+CASE = table(
+    "case", "An fvsolver case.",
+    Key("schema_version", "integer", "Version of this case format.", default=REQUIRED,
+        minimum=SCHEMA_VERSION, maximum=SCHEMA_VERSION),
+    Key("title", "string", "A short name for reports.", default=""),
+    GEOMETRY,
+    table("mesh", MESH.doc, *MESH.children, default={}),
+    Key("materials", "map", "Material properties by mesh material tag (glass, cap, ...).",
+        default=REQUIRED, item=MATERIAL),
+    table("initial", "Initial state.", num("temperature", "Uniform initial temperature.", "K", REQUIRED, positive=True)),
+    Key("boundary", "map", "Boundary conditions by patch name (the axis is always symmetry).",
+        default=REQUIRED, item=PATCH),
+    Key("sources", "tables", "Volumetric heat sources.", default=[], item=SOURCE),
+    table("time", "Simulated time.", num("end", "End of the simulation.", "s", REQUIRED, positive=True)),
+    table("numerics", NUMERICS.doc, *NUMERICS.children, default={}),
+    table("output", OUTPUT.doc, *OUTPUT.children, default={}),
+)
+
+
+def json_schema(key: Key = CASE) -> dict:
+    """JSON Schema (draft 2020-12) of the case format, for editors."""
+
+    def convert(k: Key) -> dict:
+        desc = k.doc + (f" [{k.unit}]" if k.unit else "")
+        if k.kind == "number":
+            out: dict = {"type": "number"}
+            if k.minimum is not None:
+                out["exclusiveMinimum" if k.exclusive_minimum else "minimum"] = k.minimum
+            if k.maximum is not None:
+                out["maximum"] = k.maximum
+        elif k.kind == "integer":
+            out = {"type": "integer"}
+            if k.minimum is not None:
+                out["minimum"] = k.minimum
+            if k.maximum is not None:
+                out["maximum"] = k.maximum
+        elif k.kind == "string":
+            out = {"type": "string"}
+            if k.choices:
+                out["enum"] = list(k.choices)
+        elif k.kind == "boolean":
+            out = {"type": "boolean"}
+        elif k.kind == "numbers":
+            out = {"type": "array", "items": {"type": "number"}}
+        elif k.kind == "strings":
+            out = {"type": "array", "items": {"type": "string"}}
+        elif k.kind == "property":
+            out = {"oneOf": [
+                {"type": "number", "exclusiveMinimum": 0},
+                {"type": "object", "additionalProperties": False, "required": ["temperatures", "values"],
+                 "properties": {"temperatures": {"type": "array", "items": {"type": "number"}},
+                                "values": {"type": "array", "items": {"type": "number"}}}},
+                {"type": "object", "additionalProperties": False, "required": ["polynomial"],
+                 "properties": {"polynomial": {"type": "array", "items": {"type": "number"}}}},
+            ]}
+        elif k.kind == "table":
+            out = {"type": "object", "additionalProperties": False,
+                   "properties": {c.name: convert(c) for c in k.children}}
+            req = [c.name for c in k.children if c.required]
+            if req:
+                out["required"] = req
+        elif k.kind == "map":
+            out = {"type": "object", "additionalProperties": convert(k.item)}
+        elif k.kind == "tables":
+            out = {"type": "array", "items": convert(k.item)}
+        else:  # pragma: no cover - the definition above is closed
+            raise ValueError(k.kind)
+        out["description"] = desc
+        if k.default is not None and k.default is not REQUIRED and k.kind not in ("table", "map", "tables"):
+            out["default"] = k.default
+        return out
+
+    schema = convert(key)
+    schema["$schema"] = "https://json-schema.org/draft/2020-12/schema"
+    schema["title"] = "fvsolver case file"
+    return schema

@@ -1,0 +1,128 @@
+"""The command line: ``fvsolver run | check | mesh | verify``."""
+from __future__ import annotations
+
+import argparse
+import sys
+import traceback
+from pathlib import Path
+
+from fvsolver import __version__
+from fvsolver.errors import CaseError, FvsolverError, MeshError, SolverError
+from fvsolver.run import EXIT_CASE, EXIT_INTERNAL, EXIT_INTERRUPTED, EXIT_OK, EXIT_SOLVER
+
+EPILOG = """\
+examples:
+  fvsolver run cases/glass_bulb_cooling.toml --out results/cooling
+  fvsolver check cases/glass_bulb_cooling.toml
+  fvsolver mesh cases/glass_bulb_cooling.toml --out meshes/head.vtu
+  fvsolver verify --out verification
+
+exit codes: 0 success (a target not reached is a result, not an error), 2 bad case file or
+arguments, 3 solver failure, 4 internal error, 130 interrupted
+"""
+
+
+def _parser() -> argparse.ArgumentParser:
+    p = argparse.ArgumentParser(prog="fvsolver", description="Axisymmetric conduction-evaporation finite "
+                                "volumes for wet-cap vapour-pressure devices.", epilog=EPILOG,
+                                formatter_class=argparse.RawDescriptionHelpFormatter)
+    p.add_argument("--version", action="version", version=f"fvsolver {__version__}")
+    sub = p.add_subparsers(dest="command", required=True)
+    for name, text in (("run", "run a case and write its outputs"), ("check", "validate a case file only"),
+                       ("mesh", "write the case's mesh as VTU"), ("verify", "run the verification cases")):
+        s = sub.add_parser(name, help=text, description=text, epilog=EPILOG,
+                           formatter_class=argparse.RawDescriptionHelpFormatter)
+        g = s.add_mutually_exclusive_group()
+        g.add_argument("-q", "--quiet", action="store_true", help="print errors only")
+        g.add_argument("-v", "--verbose", action="store_true", help="print more detail")
+        if name in ("run", "check", "mesh"):
+            s.add_argument("case", type=Path, help="the TOML case file")
+        if name == "run":
+            s.add_argument("--out", type=Path, default=None, help="output folder (default: results/<case name>)")
+            s.add_argument("--overwrite", action="store_true", help="write into a non-empty output folder")
+        if name == "mesh":
+            s.add_argument("--out", type=Path, required=True, help="the VTU file to write")
+        if name == "verify":
+            s.add_argument("--out", type=Path, default=Path("verification"), help="folder for the report")
+            s.add_argument("--slow", action="store_true", help="add the finest refinement levels")
+            s.add_argument("--case", action="append", default=None, help="run only cases whose name contains this")
+    return p
+
+
+def _say(args, text: str) -> None:
+    if not args.quiet:
+        print(text)
+
+
+def _run(args) -> int:
+    from fvsolver.case import load_case
+    from fvsolver.run import run
+
+    case = load_case(args.case)
+    out = args.out or Path("results") / args.case.stem
+    result = run(case, out, overwrite=args.overwrite, argv=sys.argv)
+    s = result.summary
+    _say(args, f"{s['title'] or args.case.stem}: {s['status']} at t = {s['end_time_s']:.6g} s "
+               f"({s['n_steps']} steps, {s['n_cells']} cells)")
+    _say(args, f"  temperature {s['min_temperature_k']:.3f} .. {s['max_temperature_k']:.3f} K; "
+               f"energy balance error {s['energy_balance_relative_error']:.2e}")
+    _say(args, f"  outputs in {out}")
+    return EXIT_INTERRUPTED if s["status"] == "interrupted" else EXIT_OK
+
+
+def _check(args) -> int:
+    from fvsolver.case import load_case
+
+    case = load_case(args.case)
+    _say(args, f"{args.case}: valid (schema {case['schema_version']}, sha256 {case.sha256[:12]})")
+    return EXIT_OK
+
+
+def _mesh(args) -> int:
+    from fvsolver.case import load_case
+    from fvsolver.case.build import build_mesh
+    from fvsolver.vtk_io import write_mesh
+
+    mesh = build_mesh(load_case(args.case))
+    args.out.parent.mkdir(parents=True, exist_ok=True)
+    write_mesh(mesh, args.out)
+    _say(args, f"wrote {args.out}: {mesh.n_cells} cells, patches {', '.join(mesh.patch_names)}")
+    return EXIT_OK
+
+
+def _verify(args) -> int:
+    from fvsolver.verification.runner import format_table, run_all, write_outputs
+
+    reports = run_all(args.case, slow=args.slow)
+    json_path, png_path = write_outputs(reports, args.out)
+    _say(args, format_table(reports))
+    _say(args, f"wrote {json_path} and {png_path}")
+    return EXIT_OK if all(c.passed for r in reports for c in r.checks) else EXIT_SOLVER
+
+
+def main(argv: list[str] | None = None) -> int:
+    args = _parser().parse_args(argv)
+    handler = {"run": _run, "check": _check, "mesh": _mesh, "verify": _verify}[args.command]
+    try:
+        return handler(args)
+    except (CaseError, MeshError) as exc:
+        print(f"error: {exc}", file=sys.stderr)
+        return EXIT_CASE
+    except SolverError as exc:
+        print(f"solver failure: {exc}", file=sys.stderr)
+        return EXIT_SOLVER
+    except KeyboardInterrupt:
+        print("interrupted", file=sys.stderr)
+        return EXIT_INTERRUPTED
+    except FvsolverError as exc:
+        print(f"error: {exc}", file=sys.stderr)
+        return EXIT_CASE
+    except Exception:  # an internal error: say so plainly, with the traceback for a bug report
+        traceback.print_exc()
+        print("internal error: this is a bug in fvsolver; please report it with the case file",
+              file=sys.stderr)
+        return EXIT_INTERNAL
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,1 @@
+"""What a run writes: summaries, histories, fields, plots and reports."""
