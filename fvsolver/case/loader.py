@@ -247,12 +247,17 @@ class Case:
         return self.path.parent if self.path else Path.cwd()
 
 
-def validate_data(raw: dict, filename: str = "<case>", text: str = "") -> tuple[dict, list[str]]:
-    """Schema check and defaults, then the physical-consistency checks; returns (data, problems)."""
+def validate_data(raw: dict, filename: str = "<case>", text: str = "",
+                  folder: Path | None = None) -> tuple[dict, list[str]]:
+    """Schema check and defaults, then the physical-consistency checks; returns (data, problems).
+
+    ``folder`` is where relative paths in the case resolve (the case file's folder).
+    """
     from fvsolver.case.consistency import check_consistency
 
     v = Validator(filename, line_map(text))
     data = v.check(CASE, raw, "")
+    data["_folder"] = str((folder or Path.cwd()).resolve())
     if not v.problems:
         check_consistency(data, v)
     return data, v.problems
@@ -278,9 +283,8 @@ def load_case(path: str | Path) -> Case:
     except tomllib.TOMLDecodeError as exc:
         m = re.search(r"line (\d+)", str(exc))
         raise CaseErrors([f"{path}:{m.group(1) if m else 1}: TOML syntax: {exc}; fix the syntax"]) from exc
-    data, problems = validate_data(raw, str(path), text)
+    data, problems = validate_data(raw, str(path), text, path.parent)
     if problems:
         raise CaseErrors(problems)
-    data["_folder"] = str(path.parent.resolve())
     resolved = dumps({k: v for k, v in data.items() if not k.startswith("_")})
     return Case(path, _freeze(data), text, hashlib.sha256(resolved.encode()).hexdigest())
