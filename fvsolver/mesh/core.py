@@ -243,7 +243,7 @@ def from_blocks(
         all_cells.append(cells + offset)
         all_edges.append(edges + offset)
         all_names.extend(names)
-        materials.extend([block.material] * len(cells))
+        materials.append(block.material)
         offset += len(flat)
     nodes = np.concatenate(all_nodes)
     extent = float(np.ptp(nodes, axis=0).max())
@@ -259,7 +259,8 @@ def from_blocks(
     cells = label[np.concatenate(all_cells)]
     edges = label[np.concatenate(all_edges)] if all_edges else np.zeros((0, 2), dtype=int)
     material_names = tuple(dict.fromkeys(materials))
-    cell_material = np.array([material_names.index(m) for m in materials], dtype=np.int64)
+    block_material = np.array([material_names.index(b.material) for b in blocks], dtype=np.int64)
+    cell_material = np.repeat(block_material, [len(c) for c in all_cells])
     return build_mesh(
         coordinate_system, merged_nodes, cells, cell_material, material_names, edges, all_names
     )
@@ -283,7 +284,7 @@ def build_mesh(
         patch, patch edges that are not on the boundary, untagged cells, or an axis
         patch that is not on r = 0.
     """
-    nodes = np.ascontiguousarray(nodes, dtype=float)
+    nodes = np.array(nodes, dtype=float)  # a copy: r is clamped to >= 0 below
     cells = np.ascontiguousarray(cells, dtype=np.int64)
     n_cells = len(cells)
     if coordinate_system not in COORDINATE_SYSTEMS:
@@ -382,7 +383,8 @@ def build_mesh(
                 f"{nodes[k[1]].tolist()} is not on the boundary; a joined block side "
                 "must not carry a patch"
             )
-        names = np.array([patch_names.index(s) for s in patch_edge_names], dtype=np.int64)
+        lookup = {name: i for i, name in enumerate(patch_names)}
+        names = np.fromiter((lookup[s] for s in patch_edge_names), dtype=np.int64, count=len(patch_edge_names))
         boundary_patch[hit] = names
     missing = np.flatnonzero(boundary_patch < 0)
     if missing.size:
