@@ -178,7 +178,9 @@ class BoundaryData:
 
     @property
     def linear(self) -> bool:
-        return all(not isinstance(term, Radiation) for c in self.conditions for term in c.terms)
+        """True when every flux term is affine in the surface temperature."""
+        return all(isinstance(term, (FixedTemperature, Symmetry, HeatFlux, Convection))
+                   for c in self.conditions for term in c.terms)
 
 
 def compile_boundary(mesh: Mesh, conditions: list[PatchCondition], where: str = "boundary") -> BoundaryData:

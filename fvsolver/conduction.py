@@ -45,6 +45,8 @@ class Evaluation:
     surface_temperature : (n_boundary,) K
     boundary_heat : (n_boundary,) W, heat into the body through each boundary face
     source_heat : float, W
+    surface_conductance : (n_boundary,) W/(m2 K), k_P / delta (cell to face)
+    surface_derivative : (n_boundary,) W/(m2 K), dq/dT_s of the flux terms at the surface
     """
 
     rate: np.ndarray
@@ -53,10 +55,20 @@ class Evaluation:
     surface_temperature: np.ndarray
     boundary_heat: np.ndarray
     source_heat: float
+    surface_conductance: np.ndarray | None = None
+    surface_derivative: np.ndarray | None = None
 
     @property
     def heat_in(self) -> float:
         return float(self.boundary_heat.sum() + self.source_heat)
+
+    def inflow(self, group: str) -> float:
+        """Net inflow of a conserved total (here only energy, W)."""
+        return self.heat_in
+
+    def gross(self, group: str) -> float:
+        """Gross exchange of a conserved total: the scale of its balance error."""
+        return self.gross_heat
 
     @property
     def gross_heat(self) -> float:
@@ -106,12 +118,13 @@ class ConductionProblem:
             self.stencil.nonorthogonal
             or bool(np.any(np.abs(self.stencil.boundary_offset) > 1e-10 * np.abs(self.stencil.boundary_distance)[:, None]))
         )
-        self._density = np.array([m.density for m in self.materials])[mesh.cell_material]
-        self._constant_k = all(m.conductivity.is_constant for m in self.materials)
-        self._constant_c = all(m.heat_capacity.is_constant for m in self.materials)
+        self._constant_k = all(not m.context_dependent and m.conductivity.is_constant for m in self.materials)
+        self._constant_c = all(not m.context_dependent and m.heat_capacity.is_constant for m in self.materials)
+        self._cells = [np.flatnonzero(mesh.cell_material == i) for i in range(len(self.materials))]
         self._surface_guess: np.ndarray | None = None
         self._k_constant = None
-        self._k_constant = self.conductivity(np.full(self.n, REFERENCE_TEMPERATURE)) if self._constant_k else None
+        if self._constant_k:
+            self._k_constant = self._per_cell(np.full(self.n, REFERENCE_TEMPERATURE), "conductivity_at", None)
         # boundary faces of flux kind, grouped by condition, for vectorised term sums
         self._flux_groups = [
             (c, f) for c, f in zip(self.boundary.conditions, self.boundary.faces) if c.kind == "flux"
@@ -126,19 +139,17 @@ class ConductionProblem:
         self._g_constant = g if self._constant_k else None
 
     # -- properties -------------------------------------------------------------------------
-    def _per_cell(self, T: np.ndarray, attribute: str, integral: bool = False) -> np.ndarray:
+    def _per_cell(self, T: np.ndarray, attribute: str, context) -> np.ndarray:
         out = np.empty(self.n)
-        for i, m in enumerate(self.materials):
-            sel = self.mesh.cell_material == i
-            fn = getattr(m, attribute)
-            out[sel] = fn.integral(T[sel]) if integral else fn.value(T[sel])
+        for m, cells in zip(self.materials, self._cells):
+            out[cells] = getattr(m, attribute)(T[cells], context)
         return out
 
-    def conductivity(self, T: np.ndarray) -> np.ndarray:
+    def conductivity(self, T: np.ndarray, context=None) -> np.ndarray:
         """(n_cells,) W/(m K)."""
-        if self._constant_k and self._k_constant is not None:
+        if self._k_constant is not None:
             return self._k_constant
-        return self._per_cell(T, "conductivity")
+        return self._per_cell(T, "conductivity_at", context)
 
     @property
     def linear(self) -> bool:
@@ -156,15 +167,13 @@ class ConductionProblem:
         return self.linear and not self.boundary.coefficients_vary
 
     # -- the stepper's interface ----------------------------------------------------------------
-    def capacity(self, T: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        """Stored energy m = rho V e(T) (J, from 273.15 K) and dm/dT = rho V c(T) (J/K)."""
-        rv = self._density * self.mesh.cell_volumes
-        if self._constant_c:
-            c = np.array([m.heat_capacity.coefficients[0] for m in self.materials])[self.mesh.cell_material]
-            return rv * c * (T - REFERENCE_TEMPERATURE), rv * c
-        return rv * self._per_cell(T, "heat_capacity", integral=True), rv * self._per_cell(T, "heat_capacity")
+    def capacity(self, T: np.ndarray, context=None) -> tuple[np.ndarray, np.ndarray]:
+        """Stored energy m = V rho e(T) (J, from 273.15 K) and dm/dT = V rho c(T) (J/K)."""
+        v = self.mesh.cell_volumes
+        return (v * self._per_cell(T, "volumetric_energy", context),
+                v * self._per_cell(T, "volumetric_heat_capacity", context))
 
-    def _surface(self, T, time, grad, k):
+    def _surface(self, T, time, grad, k, context=None):
         """Surface temperatures, heat fluxes and their T_P derivatives on every boundary face."""
         mesh, st = self.mesh, self.stencil
         bc = mesh.boundary_cell
@@ -175,6 +184,7 @@ class ConductionProblem:
         t_s = t_foot.copy()
         q = np.zeros(mesh.n_boundary)
         dq_dtp = np.zeros(mesh.n_boundary)
+        g1_all = np.zeros(mesh.n_boundary)
         for cond, faces in self._dirichlet_groups:
             t_s[faces] = _evaluate(cond.terms[0].temperature, mesh.boundary_centres[faces], time)
             q[faces] = kappa[faces] * (t_s[faces] - t_foot[faces])
@@ -185,31 +195,27 @@ class ConductionProblem:
             kf, tf, xc = kappa[faces], t_foot[faces], mesh.boundary_centres[faces]
             ts = tf.copy() if self._surface_guess is None else self._surface_guess[faces].copy()
             for _ in range(SURFACE_ITERATIONS):
-                g0 = np.zeros_like(ts)
-                g1 = np.zeros_like(ts)
-                for term in cond.terms:
-                    a, b = term.heat_flux(ts, time, xc)
-                    g0 += a
-                    g1 += b
+                g0, g1 = _term_sum(cond.terms, ts, time, xc, faces, context)
                 step = (kf * (ts - tf) - g0) / (kf - g1)
                 ts = ts - step
                 if np.all(np.abs(step) <= 1e-13 * np.abs(ts)):
                     break
-            g0 = np.zeros_like(ts)
-            g1 = np.zeros_like(ts)
-            for term in cond.terms:
-                a, b = term.heat_flux(ts, time, xc)
-                g0 += a
-                g1 += b
+            g0, g1 = _term_sum(cond.terms, ts, time, xc, faces, context)
             t_s[faces] = ts
+            g1_all[faces] = g1
             q[faces] = kf * (ts - tf)
             dq_dtp[faces] = kf * g1 / (kf - g1)
+        self._last_surface = (kappa, g1_all)
         return t_s, q, dq_dtp
 
-    def evaluate(self, T: np.ndarray, time: float) -> Evaluation:
-        """Heat rate into every cell at temperature ``T`` (K) and ``time`` (s)."""
+    def evaluate(self, T: np.ndarray, time: float, context=None) -> Evaluation:
+        """Heat rate into every cell at temperature ``T`` (K) and ``time`` (s).
+
+        ``context`` carries the coupled lumped state (cap water, vapour space) to the
+        materials and boundary terms that depend on it.
+        """
         mesh, st = self.mesh, self.stencil
-        k = self.conductivity(T)
+        k = self.conductivity(T, context)
         if self._g_constant is not None:
             g = self._g_constant
         else:
@@ -224,7 +230,7 @@ class ConductionProblem:
             for _ in range(SURFACE_ITERATIONS):
                 kern.cell_gradients(T, mesh.owner, mesh.neighbour, st.lsq_owner, st.lsq_neighbour,
                                     mesh.boundary_cell, st.lsq_boundary, t_s, grad)
-                t_new, q, dq = self._surface(T, time, grad, k)
+                t_new, q, dq = self._surface(T, time, grad, k, context)
                 change = np.max(np.abs(t_new - t_s)) if len(t_s) else 0.0
                 t_s = t_new
                 self._surface_guess = t_s
@@ -233,7 +239,7 @@ class ConductionProblem:
             kf = g / st.geometry
             kern.correction_flux_sum(grad, mesh.owner, mesh.neighbour, kf, st.weight_owner, st.tangent, rate)
         else:
-            t_s, q, dq = self._surface(T, time, None, k)
+            t_s, q, dq = self._surface(T, time, None, k, context)
             if not self.boundary.linear:
                 self._surface_guess = t_s
         area = mesh.boundary_areas
@@ -247,7 +253,8 @@ class ConductionProblem:
             power = _evaluate(s.power_density, centres, time) * mesh.cell_volumes[sel]
             rate[sel] += power
             source_heat += float(power.sum())
-        return Evaluation(rate, bjac, g, t_s, boundary_heat, source_heat)
+        kappa, g1 = self._last_surface
+        return Evaluation(rate, bjac, g, t_s, boundary_heat, source_heat, kappa, g1)
 
     def jacobian(self, alpha0: float, dt: float, dm: np.ndarray, ev: Evaluation) -> sp.csr_matrix:
         """J = alpha0 dm/dT - dt dF/dT (two-point part; the deferred correction is left out)."""
@@ -261,6 +268,20 @@ class ConductionProblem:
     def balance_groups(self) -> dict[str, slice]:
         """Which entries of the state make up each conserved total."""
         return {"energy": slice(0, self.n)}
+
+
+def _term_sum(terms, ts, time, centres, faces, context):
+    """Sum of the flux terms' q and dq/dT_s on one patch's faces."""
+    g0 = np.zeros_like(ts)
+    g1 = np.zeros_like(ts)
+    for term in terms:
+        if getattr(term, "coupled", False):
+            a, b = term.heat_flux(ts, time, centres, faces, context)
+        else:
+            a, b = term.heat_flux(ts, time, centres)
+        g0 += a
+        g1 += b
+    return g0, g1
 
 
 def heat_flux_vectors(problem: ConductionProblem, T: np.ndarray, ev: Evaluation) -> np.ndarray:

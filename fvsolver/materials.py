@@ -141,3 +141,22 @@ class Material:
             name, float(density), TemperatureFunction.constant(conductivity),
             TemperatureFunction.constant(heat_capacity),
         )
+
+    # -- the interface the conduction problem uses (a porous cap implements it too) ----------
+    context_dependent = False
+
+    def conductivity_at(self, T: np.ndarray, context=None) -> np.ndarray:
+        """Conductivity, W/(m K), at ``T``."""
+        return self.conductivity.value(T)
+
+    def volumetric_energy(self, T: np.ndarray, context=None) -> np.ndarray:
+        """Internal energy per volume from 273.15 K, J/m3."""
+        return self.density * self.heat_capacity.integral(T)
+
+    def volumetric_heat_capacity(self, T: np.ndarray, context=None) -> np.ndarray:
+        """rho c, J/(m3 K)."""
+        return self.density * self.heat_capacity.value(T)
+
+    @property
+    def constant_properties(self) -> bool:
+        return self.conductivity.is_constant and self.heat_capacity.is_constant

@@ -131,6 +131,9 @@ class TimeStepper:
         self.balance_error: dict[str, float] = {}
         self.cumulative_inflow: dict[str, float] = {}
         self._groups = problem.balance_groups()
+        # per-unknown scale of the tolerances: 1 for temperatures (K), problem-defined otherwise
+        self._scale = np.broadcast_to(np.asarray(getattr(problem, "tolerance_scale", 1.0), dtype=float),
+                                      (problem.n,))
         m0, _ = problem.capacity(self.y)
         self._history = _History([self.t], [self.y.copy()], [m0])
         self._dts: list[float] = []           # newest first
@@ -301,7 +304,7 @@ class TimeStepper:
             if not np.all(np.isfinite(delta)):
                 return None
             y += delta
-            norm = float(np.max(np.abs(delta)))
+            norm = float(np.max(np.abs(delta) / self._scale))
             rate_poor = norm > 0.3 * prev_norm
             prev_norm = norm
             if p.exact_jacobian:
@@ -321,8 +324,8 @@ class TimeStepper:
             ev = p.evaluate(y, t_new)
             self.counters.evaluations += 1
             m_new, _ = p.capacity(y)
-            inflow = {g: ev.heat_in for g in self._groups}
-            self._gross = {g: ev.gross_heat for g in self._groups}
+            inflow = {g: ev.inflow(g) for g in self._groups}
+            self._gross = {g: ev.gross(g) for g in self._groups}
         if not np.all(np.isfinite(y)):
             return None
         w_new = {}
@@ -334,7 +337,7 @@ class TimeStepper:
         err = 0.0
         if opt.adaptive:
             est = est_factor * np.abs(y - y_pred)
-            err = float(np.max(est / (opt.tolerance + opt.relative_tolerance * np.abs(y))))
+            err = float(np.max(est / (opt.tolerance * self._scale + opt.relative_tolerance * np.abs(y))))
         return y, m_new, err, ev, order, w_new, a0
 
     def _affine_inflow(self, ev, delta):
