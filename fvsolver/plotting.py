@@ -2,16 +2,24 @@
 from __future__ import annotations
 
 import io
+from collections.abc import Mapping, Sequence
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import matplotlib
 
 matplotlib.use("Agg")  # files only; never a window
 import matplotlib.pyplot as plt  # noqa: E402
 import matplotlib.ticker  # noqa: E402
+from matplotlib.collections import LineCollection, PolyCollection  # noqa: E402
+from matplotlib.colors import Normalize  # noqa: E402
 import numpy as np  # noqa: E402
 
 from fvsolver.outputs.files import atomic_write_bytes  # noqa: E402
+from fvsolver.outputs.report import format_duration  # noqa: E402
+
+if TYPE_CHECKING:  # pragma: no cover
+    from fvsolver.mesh.core import Mesh
 
 
 def _save(fig, path: Path) -> None:
@@ -49,4 +57,405 @@ def convergence_plot(reports, path: Path) -> None:
         ax.axis("off")
     fig.suptitle("fvsolver verification: observed convergence", fontsize=10)
     fig.tight_layout()
+    _save(fig, path)
+
+
+# ------------------------------------------------------------------ temperature fields
+ZERO_CELSIUS = 273.15
+#: Perceptually uniform and readable by colour-blind viewers; never a rainbow.
+FIELD_COLOURMAP = "cividis"
+OUTLINE_COLOUR = "#1c1c1c"
+_AXIS_PATCH = "axis"
+
+
+def _kelvin_to_celsius(t):
+    return np.asarray(t, dtype=float) - ZERO_CELSIUS
+
+
+def _celsius_to_kelvin(t):
+    return np.asarray(t, dtype=float) + ZERO_CELSIUS
+
+
+def mirrored_polygons(mesh: Mesh) -> np.ndarray:
+    """The cells as polygons over the full cross-section.
+
+    In the axisymmetric system the meridional half-plane (r >= 0) is copied to r -> -r,
+    so the picture shows the whole section through the axis; each mirrored quad keeps
+    the counter-clockwise order (its corners are reversed).  Planar meshes are returned
+    as they are.
+
+    Parameters
+    ----------
+    mesh : Mesh
+
+    Returns
+    -------
+    (2 n_cells, 4, 2) float, m, for an axisymmetric mesh: rows ``0 .. n_cells - 1`` are
+    the cells, rows ``n_cells .. 2 n_cells - 1`` their mirror images in the same order
+    (so the field to draw is ``np.tile(T, 2)``); (n_cells, 4, 2) for a planar mesh.
+    """
+    poly = np.asarray(mesh.nodes, dtype=float)[np.asarray(mesh.cells)]
+    if mesh.coordinate_system != "axisymmetric":
+        return poly.copy()
+    mirror = poly[:, ::-1, :].copy()
+    mirror[..., 0] = -mirror[..., 0]
+    return np.concatenate([poly, mirror], axis=0)
+
+
+def outline_segments(mesh: Mesh) -> np.ndarray:
+    """Edges to outline: faces between cells of different materials and the outer boundary.
+
+    The symmetry axis is not a boundary of the full cross-section and is left out; in
+    the axisymmetric system every segment is returned with its mirror image (r -> -r).
+
+    Parameters
+    ----------
+    mesh : Mesh
+
+    Returns
+    -------
+    (n_segments, 2, 2) float, m
+        Segment end points in (r, z) (or (x, y)).
+    """
+    material = np.asarray(mesh.cell_material)
+    between = material[mesh.owner] != material[mesh.neighbour]
+    boundary = np.asarray(mesh.boundary_nodes)
+    axisymmetric = mesh.coordinate_system == "axisymmetric"
+    if axisymmetric and _AXIS_PATCH in mesh.patch_names:
+        boundary = boundary[np.asarray(mesh.boundary_patch) != mesh.patch_names.index(_AXIS_PATCH)]
+    pairs = np.concatenate([np.asarray(mesh.face_nodes)[between], boundary]).reshape(-1, 2)
+    seg = np.asarray(mesh.nodes, dtype=float)[pairs]
+    if axisymmetric:
+        mirror = seg.copy()
+        mirror[..., 0] = -mirror[..., 0]
+        seg = np.concatenate([seg, mirror], axis=0)
+    return seg
+
+
+def _field_list(temperature, n_cells: int) -> list[np.ndarray]:
+    if isinstance(temperature, np.ndarray) and temperature.ndim == 1:
+        fields = [temperature]
+    elif isinstance(temperature, np.ndarray) and temperature.ndim == 2:
+        fields = list(temperature)
+    else:
+        fields = list(temperature)
+    if not fields:
+        raise ValueError("temperature: got no field, expected a (n_cells,) array or a list of them")
+    out = []
+    for k, f in enumerate(fields):
+        a = np.asarray(f, dtype=float)
+        if a.shape != (n_cells,):
+            raise ValueError(
+                f"temperature[{k}]: got shape {a.shape}, expected ({n_cells},), one value per "
+                "cell of the mesh; pass the cell-centre field of this mesh"
+            )
+        out.append(a)
+    return out
+
+
+def temperature_field_plot(
+    mesh: Mesh,
+    temperature: np.ndarray | Sequence[np.ndarray],
+    path: Path,
+    times: Sequence[float] | float | None = None,
+    title: str = "",
+) -> None:
+    """Draw one or more cell temperature fields on the mesh and write a PNG.
+
+    Axisymmetric fields are mirrored to the full cross-section (see
+    :func:`mirrored_polygons`); planar meshes are drawn as they are.  The cells are
+    filled quads on a shared colour scale in K, with degrees C on the colour bar's other
+    side; material interfaces and the outer boundary are outlined; lengths are in mm.
+
+    Parameters
+    ----------
+    mesh : Mesh
+    temperature : (n_cells,) float array, K, or a sequence of them
+        One field, or several drawn side by side (e.g. snapshots in time).
+    path : path
+        The PNG to write (atomically).
+    times : float or sequence of float, s, optional
+        The time of each field, shown as its panel's title in s, min or h.
+    title : str
+        Figure title.
+
+    Raises
+    ------
+    ValueError
+        For a field of the wrong shape, with no finite value, or a ``times`` of a
+        different length.
+    """
+    fields = _field_list(temperature, mesh.n_cells)
+    if times is None:
+        labels = [None] * len(fields)
+    else:
+        t = np.atleast_1d(np.asarray(times, dtype=float))
+        if t.shape != (len(fields),):
+            raise ValueError(
+                f"times: got {t.size} value(s) for {len(fields)} field(s); pass one time (s) per field"
+            )
+        labels = [f"t = {format_duration(v)}" for v in t]
+    finite = np.concatenate([f[np.isfinite(f)] for f in fields])
+    if finite.size == 0:
+        raise ValueError("temperature: no finite value to draw; check the solution for NaN")
+    lo, hi = float(finite.min()), float(finite.max())
+    if hi - lo < 1e-6:  # a uniform field still needs a colour scale
+        lo, hi = lo - 0.5, hi + 0.5
+    norm = Normalize(vmin=lo, vmax=hi)
+    cmap = matplotlib.colormaps[FIELD_COLOURMAP].with_extremes(bad="#e7298a")
+
+    polys = mirrored_polygons(mesh) * 1e3
+    copies = len(polys) // mesh.n_cells
+    segs = outline_segments(mesh) * 1e3
+    x0, x1 = float(polys[..., 0].min()), float(polys[..., 0].max())
+    y0, y1 = float(polys[..., 1].min()), float(polys[..., 1].max())
+    pad = 0.04 * max(x1 - x0, y1 - y0)
+    aspect = (x1 - x0 + 2 * pad) / (y1 - y0 + 2 * pad)
+    panel_w = float(np.clip(4.2 * aspect, 2.6, 7.0))
+    panel_h = float(np.clip(panel_w / aspect, 2.4, 4.2))  # wide meshes get low panels
+    n = len(fields)
+    fig, axes = plt.subplots(
+        1, n, figsize=(panel_w * n + 1.9, panel_h + (1.0 if title else 0.7)),
+        squeeze=False, sharex=True, sharey=True, layout="constrained",
+    )
+    axisymmetric = mesh.coordinate_system == "axisymmetric"
+    xname, yname = ("r", "z") if axisymmetric else ("x", "y")
+    collection = None
+    for ax, field, label in zip(axes[0], fields, labels):
+        collection = PolyCollection(
+            polys, array=np.ma.masked_invalid(np.tile(field, copies)), cmap=cmap, norm=norm,
+            edgecolors="face", linewidths=0.3,
+        )
+        ax.add_collection(collection)
+        ax.add_collection(LineCollection(segs, colors=OUTLINE_COLOUR, linewidths=0.8, zorder=3))
+        if axisymmetric:
+            ax.axvline(0.0, color="0.45", lw=0.6, ls=(0, (8, 3, 2, 3)), zorder=4)
+        ax.set_xlim(x0 - pad, x1 + pad)
+        ax.set_ylim(y0 - pad, y1 + pad)
+        ax.set_aspect("equal")
+        ax.set_xlabel(f"{xname} (mm)")
+        ax.tick_params(labelsize=8)
+        ok = field[np.isfinite(field)]
+        if not ok.size:
+            span = "no finite value"
+        elif ok.max() - ok.min() < 5e-3:
+            span = f"uniform {ok.mean():.2f} K"
+        else:
+            span = f"{ok.min():.2f} to {ok.max():.2f} K"
+        heading = f"{label}\n{span}" if label else span
+        ax.set_title(heading, fontsize=9)
+        for side in ("top", "right"):
+            ax.spines[side].set_visible(False)
+    axes[0, 0].set_ylabel(f"{yname} (mm)")
+    cbar = fig.colorbar(collection, ax=list(axes[0]), shrink=0.85, aspect=28, pad=0.02)
+    cbar.set_label("temperature (K)")
+    cbar.ax.tick_params(labelsize=8)
+    celsius = cbar.ax.secondary_yaxis("left", functions=(_kelvin_to_celsius, _celsius_to_kelvin))
+    celsius.set_ylabel("temperature (°C)")
+    celsius.tick_params(labelsize=8)
+    if title:
+        fig.suptitle(title, fontsize=11)
+    _save(fig, path)
+
+
+# ----------------------------------------------------------------------------- history
+#: Optional temperature columns: key, legend text, colour.
+_TEMPERATURE_COLUMNS = (
+    ("mean_cap_temperature_k", "wet cap (mean)", "#2c7fb8"),
+    ("mean_inner_wall_temperature_k", "inner glass wall (mean)", "#7a0177"),
+    ("second_bulb_temperature_k", "second bulb", "#d95f02"),
+)
+_RATE_COLUMNS = (
+    ("evaporation_rate_kg_s", "evaporation from the cap", "#1b9e77"),
+    ("condensation_rate_kg_s", "condensation in the head", "#6a51a3"),
+)
+_PRESSURE_COLUMNS = (
+    ("head_pressure_pa", "head vapour space", "#807dba"),
+    ("second_bulb_pressure_pa", "second bulb", "#e6550d"),
+)
+_DROP_COLOUR = "#01665e"
+_TARGET_COLOUR = "#8c2d04"
+_WATER_COLOUR = "#525252"
+
+
+def _history_columns(history: Mapping) -> dict[str, np.ndarray]:
+    if not isinstance(history, Mapping):
+        raise ValueError(f"history: got {type(history).__name__}, expected a dict of 1D arrays")
+    for key in ("time_s", "pressure_drop_pa"):
+        if key not in history:
+            raise ValueError(
+                f"history: column {key!r} missing (got {sorted(history)}); it is required"
+            )
+    cols = {}
+    n = None
+    for key, value in history.items():
+        a = np.asarray(value, dtype=float)
+        if a.ndim != 1 or a.size == 0:
+            raise ValueError(f"history[{key!r}]: got shape {a.shape}, expected a non-empty 1D array")
+        if n is None:
+            n = a.size
+        elif a.size != n:
+            raise ValueError(
+                f"history[{key!r}]: got {a.size} rows, expected {n} like the other columns"
+            )
+        cols[key] = a
+    return cols
+
+
+def _legend(ax, handles) -> None:
+    """A legend in a row above the panel, clear of every curve."""
+    if handles:
+        ax.legend(handles=handles, fontsize=7.5, frameon=False, loc="lower left",
+                  bbox_to_anchor=(0.0, 1.0), ncols=min(3, len(handles)), borderaxespad=0.2,
+                  handlelength=2.6, columnspacing=1.4)
+
+
+def history_plot(
+    history: Mapping[str, np.ndarray],
+    path: Path,
+    target_pressure_drop_pa: float | None = None,
+    time_to_target_s: float | None = None,
+    title: str = "",
+) -> None:
+    """Plot a run's history in stacked panels on a shared time axis and write a PNG.
+
+    Panels, top to bottom (a panel whose columns are all missing is left out):
+
+    1. the pressure difference that lifts the liquid column, with the target as a
+       dashed line and the time to target marked (or "target not reached"); absolute
+       pressures of the head and the second bulb on a twin axis in kPa when given;
+    2. temperatures in K with degrees C on the right;
+    3. evaporation and condensation rates in mg/s, the cap's water in g on a twin axis.
+
+    Time is shown in min when the run is longer than 10 min, else in s.
+
+    Parameters
+    ----------
+    history : mapping of str to (n_rows,) float arrays
+        Required ``"time_s"`` (s) and ``"pressure_drop_pa"`` (Pa); optional
+        ``"head_pressure_pa"``, ``"second_bulb_pressure_pa"`` (Pa),
+        ``"mean_cap_temperature_k"``, ``"mean_inner_wall_temperature_k"``,
+        ``"second_bulb_temperature_k"`` (K), ``"evaporation_rate_kg_s"``,
+        ``"condensation_rate_kg_s"`` (kg/s), ``"cap_water_kg"`` (kg).  Other columns
+        are ignored.
+    path : path
+        The PNG to write (atomically).
+    target_pressure_drop_pa : float, optional, Pa
+    time_to_target_s : float, optional, s
+        When the target was reached (None: not reached).
+    title : str
+        Figure title.
+
+    Raises
+    ------
+    ValueError
+        For a missing required column, or columns that are not 1D or differ in length.
+    """
+    cols = _history_columns(history)
+    t = cols["time_s"]
+    dp = cols["pressure_drop_pa"]
+    finite_t = t[np.isfinite(t)]
+    span = float(finite_t.max() - min(finite_t.min(), 0.0)) if finite_t.size else 0.0
+    minutes = span > 600.0
+    tscale, tunit = (60.0, "min") if minutes else (1.0, "s")
+    ts = t / tscale
+    marker = "o" if t.size < 3 else None
+
+    temps = [c for c in _TEMPERATURE_COLUMNS if c[0] in cols]
+    rates = [c for c in _RATE_COLUMNS if c[0] in cols]
+    water = "cap_water_kg" in cols
+    kinds = ["pressure"] + (["temperature"] if temps else []) + (["rates"] if rates or water else [])
+    ratios = [1.35] + [1.0] * (len(kinds) - 1)
+    fig, axes = plt.subplots(
+        len(kinds), 1, sharex=True, squeeze=False, layout="constrained",
+        figsize=(8.0, 1.2 + 2.5 * sum(ratios)), gridspec_kw={"height_ratios": ratios},
+    )
+    axes = axes[:, 0]
+    for ax in axes:
+        ax.grid(True, lw=0.4, alpha=0.45)
+        ax.tick_params(labelsize=8)
+
+    # (1) pressure difference
+    ax = axes[0]
+    finite_dp = dp[np.isfinite(dp)]
+    largest = float(np.abs(finite_dp).max()) if finite_dp.size else 0.0
+    target = None if target_pressure_drop_pa is None else float(target_pressure_drop_pa)
+    scale_ref = max(largest, abs(target) if target is not None else 0.0)
+    pscale, punit = (1e3, "kPa") if scale_ref >= 5e3 else (1.0, "Pa")
+    handles = ax.plot(ts, dp / pscale, color=_DROP_COLOUR, lw=1.8, marker=marker,
+                      label="pressure difference, second bulb - head")
+    if target is not None:
+        handles += [ax.axhline(target / pscale, color=_TARGET_COLOUR, lw=1.1, ls=(0, (5, 3)),
+                               label=f"target {target / pscale:.4g} {punit}")]
+    top = max(float(finite_dp.max()) if finite_dp.size else 0.0, target if target is not None else 0.0)
+    bottom = min(float(finite_dp.min()) if finite_dp.size else 0.0, 0.0)
+    if top > bottom:
+        ax.set_ylim(bottom / pscale, (top + 0.18 * (top - bottom)) / pscale)
+    t_lo = float(ts[np.isfinite(ts)].min()) if finite_t.size else 0.0
+    t_hi = float(ts[np.isfinite(ts)].max()) if finite_t.size else 1.0
+    if time_to_target_s is not None and np.isfinite(time_to_target_s):
+        tt = float(time_to_target_s) / tscale
+        order = np.argsort(t)
+        y = target if target is not None else float(np.interp(float(time_to_target_s), t[order], dp[order]))
+        ax.plot([tt], [y / pscale], marker="o", ms=7, mfc="white", mec=_TARGET_COLOUR, mew=1.8, zorder=5)
+        right = t_hi > t_lo and (tt - t_lo) / (t_hi - t_lo) > 0.6
+        ax.annotate(
+            f"target reached at {format_duration(time_to_target_s)}", xy=(tt, y / pscale),
+            xytext=(-14 if right else 14, -26), textcoords="offset points",
+            ha="right" if right else "left", va="top", fontsize=8.5, color=_TARGET_COLOUR,
+            arrowprops={"arrowstyle": "-", "color": _TARGET_COLOUR, "lw": 0.8},
+            bbox={"boxstyle": "round,pad=0.25", "fc": "white", "ec": "none", "alpha": 0.85},
+        )
+    elif target is not None:
+        ax.text(
+            0.015, 0.96, f"target not reached (largest {largest / pscale:.4g} {punit})",
+            transform=ax.transAxes, ha="left", va="top", fontsize=8.5, color=_TARGET_COLOUR,
+            bbox={"boxstyle": "round,pad=0.3", "fc": "white", "ec": _TARGET_COLOUR, "lw": 0.6},
+        )
+    ax.set_ylabel(f"pressure difference ({punit})", fontsize=9)
+    pressures = [c for c in _PRESSURE_COLUMNS if c[0] in cols]
+    if pressures:
+        twin = ax.twinx()
+        for key, label, colour in pressures:
+            handles += twin.plot(ts, cols[key] / 1e3, color=colour, lw=1.3, ls=(0, (1, 1.2)),
+                                 marker=marker, label=f"{label}, absolute (right)")
+        twin.margins(y=0.1)
+        twin.set_ylabel("absolute pressure (kPa)", fontsize=9)
+        twin.tick_params(labelsize=8)
+    _legend(ax, handles)
+
+    # (2) temperatures
+    if temps:
+        ax = axes[kinds.index("temperature")]
+        handles = []
+        for key, label, colour in temps:
+            handles += ax.plot(ts, cols[key], color=colour, lw=1.5, marker=marker, label=label)
+        ax.set_ylabel("temperature (K)", fontsize=9)
+        celsius = ax.secondary_yaxis("right", functions=(_kelvin_to_celsius, _celsius_to_kelvin))
+        celsius.set_ylabel("temperature (°C)", fontsize=9)
+        celsius.tick_params(labelsize=8)
+        _legend(ax, handles)
+
+    # (3) rates and cap water
+    if rates or water:
+        ax = axes[kinds.index("rates")]
+        handles = []
+        for key, label, colour in rates:
+            handles += ax.plot(ts, cols[key] * 1e6, color=colour, lw=1.5, marker=marker, label=label)
+        if rates:
+            ax.set_ylabel("rate (mg/s)", fontsize=9)
+        if water:
+            wax = ax.twinx() if rates else ax
+            handles += wax.plot(ts, cols["cap_water_kg"] * 1e3, color=_WATER_COLOUR, lw=1.3,
+                                ls=(0, (6, 2, 1, 2)), marker=marker,
+                                label="water held by the cap" + (" (right)" if rates else ""))
+            wax.set_ylabel("cap water (g)", fontsize=9)
+            wax.tick_params(labelsize=8)
+        _legend(ax, handles)
+
+    axes[-1].set_xlabel(f"time ({tunit})", fontsize=9)
+    if t_hi > t_lo:
+        axes[-1].set_xlim(t_lo, t_hi)
+    if title:
+        fig.suptitle(title, fontsize=11)
     _save(fig, path)

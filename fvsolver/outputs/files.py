@@ -11,6 +11,9 @@ def atomic_write_bytes(path: Path, data: bytes) -> None:
     path = Path(path)
     fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".part")
     try:
+        umask = os.umask(0)
+        os.umask(umask)
+        os.chmod(tmp, 0o666 & ~umask)  # mkstemp makes the file owner-only; outputs are shared files
         with os.fdopen(fd, "wb") as fh:
             fh.write(data)
             fh.flush()

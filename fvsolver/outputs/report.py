@@ -1,0 +1,380 @@
+"""A readable run report (``report.md``): result in plain words, inputs, plots, safety figures.
+
+The report is Markdown so it reads as plain text and renders in any Markdown viewer.  It is
+built only from what it is given: the run's summary, the case title, a table of inputs and
+the file names of the plots; a key missing from the summary is said to be missing, never
+guessed.
+"""
+from __future__ import annotations
+
+import math
+import os
+from collections.abc import Mapping, Sequence
+from numbers import Real
+from pathlib import Path
+
+from fvsolver.outputs.files import atomic_write_text
+
+__all__ = ["write_report", "format_duration", "format_pressure", "REPORT_NAME"]
+
+REPORT_NAME = "report.md"
+#: Standard atmospheric pressure, Pa (ISO 2533), the reference for over- and underpressure.
+STANDARD_ATMOSPHERE_PA = 101_325.0
+#: Relative balance error above which the report tells the reader to distrust the run.
+BALANCE_ALERT = 1e-2
+
+
+# --------------------------------------------------------------------------- formatting
+def _number(value) -> float | None:
+    """``value`` as a finite float, or None for anything else (None, NaN, text, bool)."""
+    if isinstance(value, bool) or not isinstance(value, Real):
+        return None
+    value = float(value)
+    return value if math.isfinite(value) else None
+
+
+def format_duration(seconds: float | None) -> str:
+    """A duration in readable units.
+
+    Parameters
+    ----------
+    seconds : float or None, s
+
+    Returns
+    -------
+    str
+        ``"0.25 s"``, ``"42 s"``, ``"4 min 12 s"``, ``"2 h 5 min"``, ``"3 d 4 h"``;
+        ``"n/a"`` for None or a non-finite value.
+    """
+    s = _number(seconds)
+    if s is None:
+        return "n/a"
+    sign = "-" if s < 0 else ""
+    s = abs(s)
+    if s < 59.5:
+        text = f"{s:.2g} s" if s < 10 else f"{round(s):d} s"
+        if s == 0.0:
+            text = "0 s"
+        return sign + text
+    total = round(s)
+    if total < 3600:
+        m, sec = divmod(total, 60)
+        return f"{sign}{m} min {sec} s"
+    total_min = round(s / 60.0)
+    if total_min < 24 * 60:
+        h, m = divmod(total_min, 60)
+        return f"{sign}{h} h {m} min"
+    total_h = round(s / 3600.0)
+    d, h = divmod(total_h, 24)
+    return f"{sign}{d} d {h} h"
+
+
+def format_pressure(pa: float | None) -> str:
+    """A pressure in Pa below 1 kPa, else kPa (MPa from 1 MPa); ``"n/a"`` when missing.
+
+    Parameters
+    ----------
+    pa : float or None, Pa
+    """
+    p = _number(pa)
+    if p is None:
+        return "n/a"
+    a = abs(p)
+    if a < 1e3:
+        return f"{p:.0f} Pa" if a >= 10 else f"{p:.3g} Pa"
+    if a < 1e6:
+        return f"{p / 1e3:.3g} kPa" if a < 1e5 else f"{p / 1e3:.1f} kPa"
+    return f"{p / 1e6:.3g} MPa"
+
+
+def _format_temperature(k: float | None) -> str:
+    t = _number(k)
+    return "n/a" if t is None else f"{t:.1f} K ({t - 273.15:.1f} °C)"
+
+
+def _format_fraction(value: float | None) -> str:
+    """A relative error as a percentage, with enough digits to be read."""
+    v = _number(value)
+    if v is None:
+        return "n/a"
+    pct = 100.0 * v
+    if pct == 0.0:
+        return "0 %"
+    return f"{pct:.2g} %" if abs(pct) >= 1e-3 else f"{pct:.1e} %"
+
+
+def _format_count(value) -> str | None:
+    v = _number(value)
+    return None if v is None else f"{int(round(v)):,d}"
+
+
+def _format_value(value) -> str:
+    """An input value as table text (numbers to 6 significant digits)."""
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    if isinstance(value, Real):
+        v = float(value)
+        return f"{v:.6g}" if math.isfinite(v) else str(v)
+    if isinstance(value, Mapping):
+        return ", ".join(f"{k}: {_format_value(v)}" for k, v in value.items())
+    if isinstance(value, (list, tuple)):
+        return ", ".join(_format_value(v) for v in value)
+    if hasattr(value, "tolist"):  # numpy scalars and arrays
+        return _format_value(value.tolist())
+    return str(value)
+
+
+def _cell(text: str) -> str:
+    """Text safe inside a Markdown table cell."""
+    return str(text).replace("\\", "\\\\").replace("|", "\\|").replace("\n", " ")
+
+
+# ------------------------------------------------------------------------------ sections
+def _target_reached(summary: Mapping) -> bool | None:
+    reached = summary.get("target_reached")
+    if isinstance(reached, bool):
+        return reached
+    if _number(summary.get("time_to_target_s")) is not None:
+        return True
+    return None
+
+
+def _balance_sentence(name: str, value) -> str | None:
+    """One sentence on a balance error (a float or a dict of per-quantity errors)."""
+    if isinstance(value, Mapping):
+        parts = [(str(k), _number(v)) for k, v in value.items()]
+        parts = [(k, v) for k, v in parts if v is not None]
+        if not parts:
+            return None
+        worst = max(abs(v) for _, v in parts)
+        text = ", ".join(f"{k.replace('_', ' ')} {_format_fraction(v)}" for k, v in parts)
+        sentence = f"The {name} balances closed to within: {text} (relative errors)."
+    else:
+        worst = _number(value)
+        if worst is None:
+            return None
+        worst = abs(worst)
+        sentence = f"The {name} balance closed to within {_format_fraction(worst)} (relative error)."
+    if worst > BALANCE_ALERT:
+        sentence += (
+            f" That is more than {_format_fraction(BALANCE_ALERT)}: treat the results with "
+            "caution and rerun with smaller time steps or a finer mesh."
+        )
+    return sentence
+
+
+def result_paragraph(summary: Mapping) -> str:
+    """The run's outcome in plain words, built from the keys that ``summary`` has.
+
+    Parameters
+    ----------
+    summary : mapping
+        Any of ``status``, ``target_reached``, ``time_to_target_s``,
+        ``target_pressure_drop_pa``, ``max_pressure_drop_pa``, ``stall_reason``,
+        ``energy_balance_relative_error``, ``mass_balance_relative_error`` (a float or a
+        mapping of quantity to error), ``n_cells``, ``n_steps``, ``warnings``.
+
+    Returns
+    -------
+    str
+        One paragraph of Markdown.
+    """
+    sentences = []
+    status = summary.get("status")
+    if status:
+        sentences.append(f"The run ended with status “{status}”.")
+    target = _number(summary.get("target_pressure_drop_pa"))
+    target_text = f"the target of {format_pressure(target)}" if target is not None else "the target"
+    peak = _number(summary.get("max_pressure_drop_pa"))
+    reached = _target_reached(summary)
+    t_target = _number(summary.get("time_to_target_s"))
+    if reached is True:
+        when = f" after {format_duration(t_target)} of simulated time" if t_target is not None else ""
+        sentences.append(
+            f"The pressure difference between the second bulb and the head reached {target_text}{when}."
+        )
+        if peak is not None:
+            sentences.append(f"The largest pressure difference was {format_pressure(peak)}.")
+    elif reached is False:
+        text = f"The pressure difference between the second bulb and the head did not reach {target_text}"
+        text += f"; the largest difference was {format_pressure(peak)}." if peak is not None else "."
+        sentences.append(text)
+        reason = summary.get("stall_reason")
+        if reason:
+            sentences.append(f"Why it stopped short: {str(reason).rstrip('.')}.")
+        else:
+            sentences.append("The run recorded no reason for stopping short.")
+    else:
+        text = "The summary does not say whether the target pressure difference was reached"
+        text += f"; the largest difference was {format_pressure(peak)}." if peak is not None else "."
+        sentences.append(text)
+        reason = summary.get("stall_reason")
+        if reason:
+            sentences.append(f"Recorded stall reason: {str(reason).rstrip('.')}.")
+    cells, steps = _format_count(summary.get("n_cells")), _format_count(summary.get("n_steps"))
+    if cells and steps:
+        sentences.append(f"The model had {cells} cells and took {steps} time steps.")
+    elif cells:
+        sentences.append(f"The model had {cells} cells.")
+    elif steps:
+        sentences.append(f"The run took {steps} time steps.")
+    for name, key in (("energy", "energy_balance_relative_error"), ("mass", "mass_balance_relative_error")):
+        sentence = _balance_sentence(name, summary.get(key))
+        if sentence:
+            sentences.append(sentence)
+    warnings = summary.get("warnings") or []
+    if isinstance(warnings, str):
+        warnings = [warnings]
+    if warnings:
+        n = len(warnings)
+        sentences.append(f"The run raised {n} warning{'s' if n != 1 else ''}, listed under safety figures.")
+    return " ".join(sentences)
+
+
+def _inputs_table(inputs: Mapping) -> list[str]:
+    if not inputs:
+        return ["No inputs were passed to the report."]
+    lines = ["| input | value |", "|---|---|"]
+    lines += [f"| {_cell(str(k))} | {_cell(_format_value(v))} |" for k, v in inputs.items()]
+    return lines
+
+
+def _plot_links(folder: Path, plots: Sequence) -> list[str]:
+    if not plots:
+        return ["No plots were written for this run."]
+    lines = []
+    for plot in plots:
+        p = Path(plot)
+        target = p if p.is_absolute() else folder / p
+        try:
+            rel = os.path.relpath(target.resolve(), folder.resolve())
+        except ValueError:  # another drive (Windows): the link has to stay absolute
+            rel = str(target.resolve())
+        rel = Path(rel).as_posix()
+        link = f"<{rel}>" if any(c in rel for c in " ()") else rel
+        alt = p.stem.replace("_", " ")
+        lines.append(f"![{alt}]({link})")
+        if not target.exists():
+            lines.append(f"*(the file {rel} did not exist when this report was written)*")
+        lines.append("")
+    return lines[:-1]
+
+
+def _safety_figures(summary: Mapping) -> list[str]:
+    lines = []
+    p = _number(summary.get("max_internal_pressure_pa"))
+    if p is None:
+        lines.append("- Largest internal pressure: not recorded in the summary.")
+    else:
+        diff = p - STANDARD_ATMOSPHERE_PA
+        load = (
+            "the glass is loaded by internal overpressure" if diff > 0
+            else "the glass is loaded from outside, as under a partial vacuum"
+        )
+        lines.append(
+            f"- Largest internal pressure: {format_pressure(p)} (absolute); "
+            f"{format_pressure(abs(diff))} {'above' if diff > 0 else 'below'} standard atmospheric "
+            f"pressure (101.325 kPa), so {load}. Check it against the rating of the glassware, "
+            "with a margin, before any test."
+        )
+    t = _number(summary.get("max_glass_temperature_k"))
+    lines.append(
+        "- Largest glass temperature: not recorded in the summary." if t is None
+        else f"- Largest glass temperature: {_format_temperature(t)}."
+    )
+    warnings = summary.get("warnings") or []
+    if isinstance(warnings, str):
+        warnings = [warnings]
+    if warnings:
+        lines.append("- Warnings raised by the run:")
+        lines += [f"  - {str(w).strip()}" for w in warnings]
+    else:
+        lines.append("- Warnings raised by the run: none.")
+    return lines
+
+
+CAUTIONS = """\
+This report is the output of a numerical model, not a safety assessment. Before anything is
+built, filled or run, follow local codes and regulations and your organisation's procedures,
+and have the design, the filling and the test plan reviewed under licensed professional
+practice (a qualified chemist, pressure or glass specialist, or safety officer). The notes
+below are reminders, not a complete list.
+
+**Toxic, volatile working fluid.** Working fluids such as dichloromethane evaporate quickly
+and their vapour is harmful: it depresses the nervous system, dichloromethane is turned into
+carbon monoxide in the body, and it is a suspected carcinogen. The vapour is heavier than air
+and collects in low places.
+
+- Read the fluid's safety data sheet (SDS) before handling it and keep it at hand.
+- Fill, open and empty devices only in a working fume hood or with equivalent local exhaust
+  ventilation; never in a closed room, a car or near sleeping or living spaces.
+- Wear chemical splash goggles (a face shield as well when handling glass under pressure or
+  vacuum) and gloves of a material that the SDS rates for the fluid: dichloromethane passes
+  through common thin nitrile or latex gloves within minutes.
+- Store and dispose of the fluid as the SDS and local rules require; never pour it down a drain.
+
+**Sealed glass under pressure or vacuum.** A sealed bulb holds the fluid's vapour pressure,
+which rises steeply with temperature; the head's vapour space can also fall below atmospheric
+pressure. Either way the glass can burst or implode and throw fragments.
+
+- Use only annealed glassware, inspected before every use for scratches, chips, stars and
+  strain; discard any piece that is damaged.
+- Keep the device behind a shield (for example a polycarbonate screen), and keep people out
+  of its line of fire during tests.
+- Never heat a sealed bulb with a flame, a heat gun or direct sunlight, and never warm it
+  beyond the temperature the design was checked for; leave enough vapour space when filling.
+- Avoid thermal shock: do not put a hot bulb into cold water or the reverse.
+
+**Heaters, hot water and flames near the vapour.** Many volatile working fluids are
+flammable; dichloromethane is hard to ignite, but on flames and hot surfaces it decomposes
+into toxic and corrosive gases (hydrogen chloride, phosgene).
+
+- Keep open flames, glowing elements and spark sources away from where vapour can collect.
+- Use heaters and water baths with thermostatic control and an independent over-temperature
+  cut-out, and keep electrical equipment away from spills.
+- Keep hot water in stable containers, away from edges and cables, to avoid scalds.
+"""
+
+
+def write_report(
+    folder: str | os.PathLike,
+    summary: dict,
+    case_title: str,
+    inputs: dict,
+    plots: list[str],
+) -> Path:
+    """Write ``report.md`` into ``folder`` atomically and return its path.
+
+    Parameters
+    ----------
+    folder : path
+        The run's output folder (created if missing).  Plot links are made relative to it.
+    summary : dict
+        The run's summary; the keys used are those of :func:`result_paragraph` and
+        ``max_internal_pressure_pa`` (Pa, absolute), ``max_glass_temperature_k`` (K),
+        ``warnings`` (list of str).  Missing keys are reported as not recorded.
+    case_title : str
+        The report's title.
+    inputs : dict
+        Input name with its unit in the name (e.g. ``"room air temperature (K)"``) to
+        value, shown as a table in the given order.
+    plots : list of str
+        Image files, absolute or relative to ``folder``, embedded in the given order.
+
+    Returns
+    -------
+    pathlib.Path
+        ``folder / "report.md"``.
+    """
+    folder = Path(folder)
+    folder.mkdir(parents=True, exist_ok=True)
+    summary = summary or {}
+    title = (case_title or "").strip() or "Untitled case"
+    lines = [f"# {title}", "", "## Result", "", result_paragraph(summary) or "The summary is empty.", ""]
+    lines += ["## Inputs", "", *_inputs_table(inputs or {}), ""]
+    lines += ["## Plots", "", *_plot_links(folder, plots or []), ""]
+    lines += ["## Safety figures", "", *_safety_figures(summary), ""]
+    lines += ["## Cautions", "", CAUTIONS]
+    path = folder / REPORT_NAME
+    atomic_write_text(path, "\n".join(lines))
+    return path

@@ -1,0 +1,175 @@
+"""Figures: the mirrored geometry, the material outline, and the PNGs the plot functions write."""
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+from fvsolver import plotting
+from fvsolver.mesh import builders as B
+from fvsolver.mesh import head as H
+from fvsolver.mesh.core import polygon_metrics
+
+RI, TG, TC = 0.020, 0.0015, 0.003
+MIN_PNG_BYTES = 5_000
+
+
+def _png_ok(path) -> None:
+    data = path.read_bytes()
+    assert data[:8] == b"\x89PNG\r\n\x1a\n"
+    assert len(data) > MIN_PNG_BYTES, len(data)
+
+
+@pytest.fixture
+def shell():
+    return B.spherical_shell(0.02, 0.022, 4, 16)
+
+
+@pytest.fixture
+def capped():
+    return H.two_layer_shell(RI, TG, TC, (0.0, math.radians(100.0)), 3, 3, 24)
+
+
+def _field(mesh) -> np.ndarray:
+    r, z = mesh.cell_centres.T
+    return 288.0 + 4.0 * (z - z.min()) / np.ptp(z) + 100.0 * r
+
+
+def test_mirrored_polygons_cover_the_full_section(shell):
+    poly = plotting.mirrored_polygons(shell)
+    n = shell.n_cells
+    assert poly.shape == (2 * n, 4, 2)
+    assert poly[..., 0].min() == pytest.approx(-0.022, rel=1e-12)
+    assert poly[..., 0].max() == pytest.approx(0.022, rel=1e-12)
+    np.testing.assert_array_equal(poly[:n], shell.nodes[shell.cells])
+    # the mirror image of cell k is row n + k: same z values, r -> -r
+    np.testing.assert_allclose(np.sort(poly[n:, :, 0], axis=1), np.sort(-poly[:n, :, 0], axis=1))
+    np.testing.assert_allclose(np.sort(poly[n:, :, 1], axis=1), np.sort(poly[:n, :, 1], axis=1))
+    # both halves stay counter-clockwise with the same areas
+    flat = poly.reshape(-1, 2)
+    areas, _ = polygon_metrics(flat, np.arange(flat.shape[0]).reshape(-1, 4))
+    assert np.all(areas > 0.0)
+    np.testing.assert_allclose(areas[n:], areas[:n], rtol=1e-12)
+    np.testing.assert_allclose(areas.sum(), 2.0 * shell.cell_areas.sum(), rtol=1e-12)
+
+
+def test_planar_meshes_are_not_mirrored():
+    mesh = B.rectangle(0.03, 0.01, 6, 2, "planar", origin=(0.01, 0.0))
+    poly = plotting.mirrored_polygons(mesh)
+    assert poly.shape == (mesh.n_cells, 4, 2)
+    assert poly[..., 0].min() == pytest.approx(0.01)
+    seg = plotting.outline_segments(mesh)
+    assert seg.shape == (2 * (6 + 2), 2, 2)  # the perimeter only
+
+
+def test_outline_has_the_material_interface_and_no_axis(capped):
+    seg = plotting.outline_segments(capped)
+    assert seg.ndim == 3 and seg.shape[1:] == (2, 2)
+    radius = np.hypot(seg[..., 0], seg[..., 1])
+    on_interface = np.all(np.abs(radius - (RI + TG)) < 1e-9, axis=1)
+    glass = capped.material_names.index("glass")
+    between = (capped.cell_material[capped.owner] == glass) != (
+        capped.cell_material[capped.neighbour] == glass
+    )
+    n_interface = int(between.sum())
+    assert n_interface > 0
+    # the interface and its mirror image; the rest of r = Ro is the bare glass outside the cap
+    bare = capped.patch_faces("glass_outer").size
+    assert on_interface.sum() == 2 * (n_interface + bare)
+    # mirrored: every segment has an image at r -> -r
+    half = seg.shape[0] // 2
+    np.testing.assert_allclose(seg[half:, :, 0], -seg[:half, :, 0])
+    # nothing lies along the axis, which is inside the full cross-section
+    assert not np.any(np.all(np.abs(seg[..., 0]) < 1e-12, axis=1))
+    # the inner wall and the cap's outer face are outlined
+    assert np.any(np.all(np.abs(radius - RI) < 1e-9, axis=1))
+    assert np.any(np.all(np.abs(radius - (RI + TG + TC)) < 1e-9, axis=1))
+
+
+def test_single_material_outline_is_the_boundary_only(shell):
+    seg = plotting.outline_segments(shell)
+    n_boundary = shell.patch_faces("inner").size + shell.patch_faces("outer").size
+    assert seg.shape[0] == 2 * n_boundary
+
+
+def test_temperature_field_plot_single_and_panels(tmp_path, capped):
+    T = _field(capped)
+    one = tmp_path / "field.png"
+    plotting.temperature_field_plot(capped, T, one, title="capped shell")
+    _png_ok(one)
+    panels = tmp_path / "panels.png"
+    plotting.temperature_field_plot(capped, [T - 2.0, T, T + 1.0], panels, times=[45.0, 300.0, 7200.0])
+    _png_ok(panels)
+    assert panels.stat().st_size > one.stat().st_size  # three panels hold more picture
+    assert not list(tmp_path.glob("*.part"))  # written atomically, no leftovers
+
+
+def test_temperature_field_plot_on_a_plain_shell_and_a_uniform_field(tmp_path, shell):
+    path = tmp_path / "uniform.png"
+    plotting.temperature_field_plot(shell, np.full(shell.n_cells, 293.15), path, times=12.0)
+    _png_ok(path)
+
+
+def test_temperature_field_plot_rejects_bad_input(tmp_path, shell):
+    with pytest.raises(ValueError, match="expected"):
+        plotting.temperature_field_plot(shell, np.zeros(shell.n_cells + 1), tmp_path / "a.png")
+    with pytest.raises(ValueError, match="one time"):
+        plotting.temperature_field_plot(
+            shell, [np.zeros(shell.n_cells)] * 2, tmp_path / "b.png", times=[1.0]
+        )
+    with pytest.raises(ValueError, match="finite"):
+        plotting.temperature_field_plot(shell, np.full(shell.n_cells, np.nan), tmp_path / "c.png")
+    assert not list(tmp_path.iterdir())
+
+
+def _history(n: int = 120, end: float = 3600.0) -> dict:
+    t = np.linspace(0.0, end, n)
+    dp = 1500.0 * (1.0 - np.exp(-t / 900.0))
+    return {
+        "time_s": t,
+        "pressure_drop_pa": dp,
+        "head_pressure_pa": 46_000.0 - dp,
+        "second_bulb_pressure_pa": np.full(n, 46_000.0),
+        "mean_cap_temperature_k": 293.15 - 6.0 * (1.0 - np.exp(-t / 400.0)),
+        "mean_inner_wall_temperature_k": 293.15 - 4.5 * (1.0 - np.exp(-t / 500.0)),
+        "second_bulb_temperature_k": np.full(n, 293.15),
+        "evaporation_rate_kg_s": 1e-6 + 2e-6 * np.exp(-t / 3000.0),
+        "condensation_rate_kg_s": 1.5e-6 * (1.0 - np.exp(-t / 300.0)),
+        "cap_water_kg": 0.004 - 1e-6 * t,
+    }
+
+
+def test_history_plot_full(tmp_path):
+    path = tmp_path / "history.png"
+    plotting.history_plot(_history(), path, 1200.0, 900.0 * math.log(5.0), title="run")
+    _png_ok(path)
+
+
+def test_history_plot_with_only_the_required_columns(tmp_path):
+    h = _history(40, 90.0)
+    path = tmp_path / "short.png"
+    plotting.history_plot({"time_s": h["time_s"], "pressure_drop_pa": h["pressure_drop_pa"]}, path, 1200.0)
+    _png_ok(path)
+    no_target = tmp_path / "no_target.png"
+    plotting.history_plot({"time_s": h["time_s"], "pressure_drop_pa": h["pressure_drop_pa"]}, no_target)
+    _png_ok(no_target)
+
+
+def test_history_plot_with_some_optional_columns(tmp_path):
+    h = _history()
+    keep = {k: h[k] for k in ("time_s", "pressure_drop_pa", "mean_cap_temperature_k", "cap_water_kg")}
+    path = tmp_path / "some.png"
+    plotting.history_plot(keep, path, 2000.0, None)
+    _png_ok(path)
+
+
+def test_history_plot_rejects_bad_columns(tmp_path):
+    h = _history(10)
+    with pytest.raises(ValueError, match="pressure_drop_pa"):
+        plotting.history_plot({"time_s": h["time_s"]}, tmp_path / "a.png")
+    with pytest.raises(ValueError, match="rows"):
+        plotting.history_plot(
+            {"time_s": h["time_s"], "pressure_drop_pa": h["pressure_drop_pa"][:-1]}, tmp_path / "b.png"
+        )
+    assert not list(tmp_path.iterdir())
