@@ -15,7 +15,8 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.sparse as sp
 
-from fvsolver.boundary import BoundaryData, PatchCondition, _evaluate, compile_boundary
+from fvsolver.boundary import (BoundaryData, Convection, HeatFlux, PatchCondition, _evaluate,
+                               compile_boundary)
 from fvsolver.discretisation import Stencil, build_stencil
 from fvsolver.errors import CaseError
 from fvsolver.kernels import conduction as kern
@@ -173,33 +174,40 @@ class ConductionProblem:
         return (v * self._per_cell(T, "volumetric_energy", context),
                 v * self._per_cell(T, "volumetric_heat_capacity", context))
 
-    def _surface(self, T, time, grad, k, context=None):
+    def _surface(self, T, time, grad, k, context=None, reuse=None):
         """Surface temperatures, heat fluxes and their T_P derivatives on every boundary face."""
         mesh, st = self.mesh, self.stencil
         bc = mesh.boundary_cell
         kappa = k[bc] / st.boundary_distance
-        t_foot = T[bc]
-        if grad is not None:
-            t_foot = t_foot + grad[bc, 0] * st.boundary_offset[:, 0] + grad[bc, 1] * st.boundary_offset[:, 1]
+        # the tangential offset (non-orthogonal boundary cells) is corrected on fixed-temperature
+        # faces; on flux faces the surface balance is taken at the cell's own temperature, so the
+        # surface solve never waits on the gradients (first order in the offset there)
+        t_foot = T[bc].copy()
         t_s = t_foot.copy()
         q = np.zeros(mesh.n_boundary)
         dq_dtp = np.zeros(mesh.n_boundary)
         g1_all = np.zeros(mesh.n_boundary)
         for cond, faces in self._dirichlet_groups:
             t_s[faces] = _evaluate(cond.terms[0].temperature, mesh.boundary_centres[faces], time)
-            q[faces] = kappa[faces] * (t_s[faces] - t_foot[faces])
+            foot = t_foot[faces]
+            if grad is not None:
+                cells = bc[faces]
+                foot = foot + grad[cells, 0] * st.boundary_offset[faces, 0] + grad[cells, 1] * st.boundary_offset[faces, 1]
+            q[faces] = kappa[faces] * (t_s[faces] - foot)
             dq_dtp[faces] = -kappa[faces]
         for cond, faces in self._flux_groups:
             if not cond.terms:
                 continue
             kf, tf, xc = kappa[faces], t_foot[faces], mesh.boundary_centres[faces]
-            ts = tf.copy() if self._surface_guess is None else self._surface_guess[faces].copy()
-            for _ in range(SURFACE_ITERATIONS):
-                g0, g1 = _term_sum(cond.terms, ts, time, xc, faces, context)
-                step = (kf * (ts - tf) - g0) / (kf - g1)
-                ts = ts - step
-                if np.all(np.abs(step) <= 1e-13 * np.abs(ts)):
-                    break
+            if reuse is not None:
+                ts = reuse[faces]
+            elif all(isinstance(t, (HeatFlux, Convection)) for t in cond.terms):
+                # affine in T_s: one Newton step from anywhere is exact
+                g0, g1 = _term_sum(cond.terms, tf, time, xc, faces, context)
+                ts = tf + g0 / (kf - g1)
+            else:
+                guess = None if self._surface_guess is None else self._surface_guess[faces]
+                ts = _solve_surface(cond.terms, kf, tf, guess, time, xc, faces, context)
             g0, g1 = _term_sum(cond.terms, ts, time, xc, faces, context)
             t_s[faces] = ts
             g1_all[faces] = g1
@@ -225,17 +233,14 @@ class ConductionProblem:
         kern.face_flux_sum(T, mesh.owner, mesh.neighbour, g, rate)
         grad = None
         if self.correct:
+            # surface temperatures first (they do not need the gradients), then the gradients,
+            # then the fixed-temperature faces' offset correction and the face corrections
+            t_s, _, _ = self._surface(T, time, None, k, context)
             grad = np.zeros((self.n, 2))
-            t_s = self._surface_guess if self._surface_guess is not None else T[mesh.boundary_cell]
-            for _ in range(SURFACE_ITERATIONS):
-                kern.cell_gradients(T, mesh.owner, mesh.neighbour, st.lsq_owner, st.lsq_neighbour,
-                                    mesh.boundary_cell, st.lsq_boundary, t_s, grad)
-                t_new, q, dq = self._surface(T, time, grad, k, context)
-                change = np.max(np.abs(t_new - t_s)) if len(t_s) else 0.0
-                t_s = t_new
-                self._surface_guess = t_s
-                if change <= 1e-12 * max(1.0, float(np.max(np.abs(t_s)))):
-                    break
+            kern.cell_gradients(T, mesh.owner, mesh.neighbour, st.lsq_owner, st.lsq_neighbour,
+                                mesh.boundary_cell, st.lsq_boundary, t_s, grad)
+            t_s, q, dq = self._surface(T, time, grad, k, context, reuse=t_s)
+            self._surface_guess = t_s
             kf = g / st.geometry
             kern.correction_flux_sum(grad, mesh.owner, mesh.neighbour, kf, st.weight_owner, st.tangent, rate)
         else:
@@ -268,6 +273,56 @@ class ConductionProblem:
     def balance_groups(self) -> dict[str, slice]:
         """Which entries of the state make up each conserved total."""
         return {"energy": slice(0, self.n)}
+
+
+def _solve_surface(terms, kappa, t_foot, guess, time, centres, faces, context):
+    """Surface temperatures solving kappa (T_s - T_foot) = q(T_s), face by face (vectorised).
+
+    F(T_s) = kappa (T_s - T_foot) - q(T_s) increases with T_s for every physical term, so a
+    Newton iteration safeguarded by bisection inside a bracket always converges, even where
+    q(T_s) turns sharply (a face switching from condensing to dry).
+    """
+    ts = t_foot.copy() if guess is None else guess.copy()
+    lo, hi = ts - 0.5, ts + 0.5
+
+    def residual(x):
+        q, dq = _term_sum(terms, x, time, centres, faces, context)
+        return kappa * (x - t_foot) - q, kappa - dq
+
+    f_lo, _ = residual(lo)
+    f_hi, _ = residual(hi)
+    for _ in range(60):  # widen the bracket until F(lo) <= 0 <= F(hi)
+        bad_lo, bad_hi = f_lo > 0.0, f_hi < 0.0
+        if not (bad_lo.any() or bad_hi.any()):
+            break
+        width = hi - lo
+        lo = np.where(bad_lo, lo - width, lo)
+        hi = np.where(bad_hi, hi + width, hi)
+        f_lo = np.where(bad_lo, residual(lo)[0], f_lo)
+        f_hi = np.where(bad_hi, residual(hi)[0], f_hi)
+    active = np.arange(ts.size)
+    for _ in range(SURFACE_ITERATIONS * 2):
+        # only the faces not yet converged are iterated (a face switching from condensing to
+        # dry converges more slowly than the rest)
+        x, l, h, fl, fh = ts[active], lo[active], hi[active], f_lo[active], f_hi[active]
+        sub = faces[active] if faces is not None else None
+        q, dq = _term_sum(terms, x, time, centres[active], sub, context)
+        f = kappa[active] * (x - t_foot[active]) - q
+        df = kappa[active] - dq
+        below = f <= 0.0
+        l, fl = np.where(below, x, l), np.where(below, f, fl)
+        h, fh = np.where(~below, x, h), np.where(~below, f, fh)
+        newton = x - f / df
+        # outside the bracket (across a kink), fall back on the secant through the bracket
+        secant = (l * fh - h * fl) / np.where(fh - fl > 0.0, fh - fl, 1.0)
+        secant = np.where((secant > l) & (secant < h), secant, 0.5 * (l + h))
+        new = np.where((newton > l) & (newton < h), newton, secant)
+        done = (np.abs(new - x) <= 2e-15 * np.abs(x)) | (h - l <= 4e-15 * np.abs(x))
+        ts[active], lo[active], hi[active], f_lo[active], f_hi[active] = new, l, h, fl, fh
+        active = active[~done]
+        if active.size == 0:
+            break
+    return ts
 
 
 def _term_sum(terms, ts, time, centres, faces, context):

@@ -20,7 +20,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from fvsolver.errors import CaseError, SolverError
+from fvsolver.errors import CaseError, FvsolverError, SolverError
 from fvsolver.linear import factorise, solve
 
 SCHEMES = ("backward_euler", "bdf2")
@@ -154,7 +154,8 @@ class TimeStepper:
             dt = self._limit(self.dt)
             try:
                 result = self._try_step(dt)
-            except SolverError as exc:
+            except (SolverError, FvsolverError, FloatingPointError) as exc:
+                # a property asked outside its range by a straying iterate counts as a failed step
                 self.counters.newton_failures += 1
                 result = None
                 reason = str(exc)
@@ -288,7 +289,9 @@ class TimeStepper:
         t_new = self.t + dt
         hist = a1 * h.m[0] + (a2 * h.m[1] if a2 else 0.0)
         y_pred, est_factor = self._predict(dt, order) if opt.adaptive else (h.y[0], 0.0)
-        y = y_pred.copy()
+        # Newton starts from the last accepted state: with stiff, sharply switching unknowns
+        # (a wall face turning dry) that is safer than the extrapolated predictor
+        y = h.y[0].copy()
         lu = None
         prev_norm = math.inf
         converged = False
@@ -306,13 +309,16 @@ class TimeStepper:
             y += delta
             norm = float(np.max(np.abs(delta) / self._scale))
             rate_poor = norm > 0.3 * prev_norm
-            prev_norm = norm
+            prev_before, prev_norm = prev_norm, norm
             if p.exact_jacobian:
                 converged = True
                 # affine problem: the rate and content at the new state follow exactly
                 m = m + dm * delta
                 break
-            if norm <= opt.newton_tolerance:
+            if it >= 1 and norm > 2.0 * prev_before and norm > 1e3 * opt.newton_tolerance:
+                return None  # diverging: a shorter step will do better
+            # converged; or stalled at the round-off floor of the evaluation just above the tolerance
+            if norm <= opt.newton_tolerance or (norm <= 1e3 * opt.newton_tolerance and norm > 0.5 * prev_before):
                 converged = True
                 break
         if not converged:

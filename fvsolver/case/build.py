@@ -97,21 +97,76 @@ def field_times(case: Case) -> np.ndarray:
     return np.unique(np.array([0.0, *listed, end]))
 
 
+def build_device_spec(case: Case, mesh: Mesh):
+    """The device model's inputs (room, cap water, vapour space, second bulb, target, safety)."""
+    from fvsolver.device.spec import (CapWater, DeviceSpec, Room, Safety, SecondBulb, Target, VapourSpace,
+                                      bulb_volume)
+    from fvsolver.properties.fluids import get_fluid
+
+    g, r, f = case["geometry"], case["room"], case["fluid"]
+    if g["shape"] == "device_head":
+        inner, outer = g["bulb_inner_radius"], g["bulb_inner_radius"] + g["glass_thickness"] + g["cap_thickness"]
+    elif g["shape"] == "two_layer_shell":
+        inner, outer = g["inner_radius"], g["inner_radius"] + g["glass_thickness"] + g["cap_thickness"]
+    else:  # a mesh file: the extent of the mesh
+        outer = float(np.hypot(mesh.nodes[:, 0], mesh.nodes[:, 1]).max())
+        inner = float(np.hypot(*mesh.boundary_centres[mesh.patch_faces("inner_wall")].T).mean())
+    extra: dict = {}
+    for hs in case["heat_sources"]:
+        extra[hs["patch"]] = extra.get(hs["patch"], 0.0) + hs["heat_flux"]
+    room = Room(r["air_temperature"], r["relative_humidity"], r["pressure"], r["air_speed"], r["convection"],
+                r.get("heat_transfer_coefficient"), r["surroundings_temperature"], r["emissivity"],
+                r.get("lewis_number"), 2.0 * outer, extra)
+    w = case["cap_water"]
+    water = CapWater(w["mode"], w["initial_saturation"], w["critical_saturation"], w["residual_saturation"],
+                     w["reservoir_temperature"], tuple((x["time"], x["mass"], x["temperature"]) for x in w["rewettings"]))
+    t0 = case["initial"]["temperature"]
+    vapour = VapourSpace(get_fluid(f["name"]), f.get("vapour_volume", bulb_volume(inner)), f["accommodation_coefficient"],
+                         f["condensation_model"], f["non_condensable_pressure"], t0, f["initial_film"],
+                         tuple(f["condensing_patches"]))
+    b = case["second_bulb"]
+    bulb = SecondBulb(b["mode"], b["heat_capacity"], b["loss_conductance"], b["heater_power"], b["initial_temperature"])
+    t = case["target"]
+    target = Target(t.get("pressure_drop"), t.get("column_height"), t["stop_when_reached"])
+    s = case["safety"]
+    return DeviceSpec(room, water, vapour, bulb, target, Safety(s["max_absolute_pressure"], s["max_glass_temperature"]))
+
+
 @dataclass(frozen=True)
 class Setup:
     """Everything a run needs, built from a case."""
 
     mesh: Mesh
-    problem: ConductionProblem
+    problem: object
     options: StepperOptions
     initial: np.ndarray
     end_time: float
     field_times: np.ndarray
+    device: object = None
+
+    @property
+    def conduction(self) -> ConductionProblem:
+        return getattr(self.problem, "conduction", self.problem)
 
 
 def build(case: Case) -> Setup:
     mesh = build_mesh(case)
     sources = tuple(VolumetricSource(s["power_density"], s["material"]) for s in case["sources"])
-    problem = ConductionProblem(mesh, build_materials(case), build_conditions(case), sources)
-    initial = np.full(mesh.n_cells, case["initial"]["temperature"])
-    return Setup(mesh, problem, build_options(case), initial, case["time"]["end"], field_times(case))
+    materials = build_materials(case)
+    stops = field_times(case)
+    if "fluid" not in case.data:
+        problem = ConductionProblem(mesh, materials, build_conditions(case), sources)
+        initial = np.full(mesh.n_cells, case["initial"]["temperature"])
+        return Setup(mesh, problem, build_options(case), initial, case["time"]["end"], stops)
+    from fvsolver.device.cap import PorousCap
+    from fvsolver.device.problem import DeviceProblem
+
+    c = case["cap"]
+    materials["cap"] = PorousCap("cap", c["porosity"], c["fibre_density"], c["fibre_conductivity"],
+                                 c["fibre_heat_capacity"], c["conductivity_model"])
+    spec = build_device_spec(case, mesh)
+    problem = DeviceProblem(mesh, materials, build_conditions(case), spec, sources)
+    initial = problem.initial_state(case["initial"]["temperature"])
+    rewet = [w[0] for w in spec.cap_water.rewettings]
+    stops = np.unique(np.concatenate([stops, rewet]))
+    return Setup(mesh, problem, build_options(case), initial, case["time"]["end"], stops, spec)

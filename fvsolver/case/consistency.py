@@ -94,7 +94,20 @@ def check_consistency(data: dict, v) -> None:
         patches, materials = mesh.patch_names, mesh.material_names
     else:
         patches, materials = shape_tags(geo)
+    device = "fluid" in data
+    if device and not _check_device(data, v, patches):
+        return
+    controlled = device_patches(data, patches) if device else ()
+    if not device and "temperature" not in data["initial"]:
+        v.error("initial.temperature", "missing (expected a number > 0 in K); add [initial] temperature = ...",
+                line_path="initial")
+    if device:
+        materials = tuple(m for m in materials if m != CAP)
     for name in data["materials"]:
+        if device and name == CAP:
+            v.error("materials.cap", "with a [fluid] the cap's properties come from [cap] and its water; remove "
+                    "[materials.cap]")
+            continue
         if name not in materials:
             v.error(f"materials.{name}", f"no such material tag on the mesh (expected {', '.join(materials)})")
     for name in materials:
@@ -103,6 +116,10 @@ def check_consistency(data: dict, v) -> None:
                     line_path="materials")
     for name, cond in data["boundary"].items():
         path = f"boundary.{name}"
+        if name in controlled:
+            v.error(path, f"patch {name!r} is set by the device model (cap, vapour space or room); remove it "
+                    "from [boundary]")
+            continue
         if name not in patches:
             import difflib
             close = difflib.get_close_matches(name, patches, n=1)
@@ -120,7 +137,7 @@ def check_consistency(data: dict, v) -> None:
         if name == AXIS and (fluxes or "fixed_temperature" in cond):
             v.error(path, "the axis r = 0 allows symmetry only (it carries no heat); remove this condition")
     for name in patches:
-        if name != AXIS and name not in data["boundary"]:
+        if name != AXIS and name not in data["boundary"] and name not in controlled:
             v.error(f"boundary.{name}", f"missing: patch {name!r} needs a condition (insulated = true if no heat "
                     "crosses it)", line_path="boundary")
     for i, src in enumerate(data["sources"]):
@@ -133,3 +150,74 @@ def check_consistency(data: dict, v) -> None:
     bad = [t for t in data["output"]["field_times"] if not 0.0 <= t <= end]
     if bad:
         v.error("output.field_times", f"got {bad}, expected times in [0, time.end = {end!r}] s")
+
+
+def device_patches(data: dict, patches) -> tuple:
+    """Patches the device model sets: the cap, the vapour-space walls, the bare outer glass."""
+    fixed = ("cap_outer", "cap_edge", "glass_outer", "neck_outer")
+    return tuple(p for p in patches if p in fixed or p in data["fluid"]["condensing_patches"])
+
+
+def _check_device(data: dict, v, patches) -> bool:
+    """Device-model checks; fills the device tables' defaults.  False when later checks are moot."""
+    from fvsolver.case.schema import CAP as CAP_KEY, CAP_WATER, SECOND_BULB
+    from fvsolver.errors import PropertyError
+    from fvsolver.properties.fluids import FLUIDS, get_fluid
+
+    shape = data["geometry"]["shape"]
+    if shape not in ("device_head", "two_layer_shell", "mesh_file"):
+        v.error("geometry.shape", f"got {shape!r}, expected 'device_head' or 'two_layer_shell' with a [fluid] "
+                "(the device needs a cap and a vapour space)")
+        return False
+    for needed in ("cap_outer", "inner_wall"):
+        if needed not in patches:
+            v.error("geometry", f"the mesh has no {needed!r} patch, which the device model needs")
+            return False
+    for name, key in (("cap", CAP_KEY), ("cap_water", CAP_WATER), ("second_bulb", SECOND_BULB)):
+        if name not in data:
+            data[name] = v.check(key, {}, name)
+    for name in ("room", "target"):
+        if name not in data:
+            v.error(name, f"missing: a case with a [fluid] needs a [{name}] table", line_path="fluid")
+    if v.problems:
+        return False
+    try:
+        fluid = get_fluid(data["fluid"]["name"])
+    except PropertyError:
+        v.error("fluid.name", f"got {data['fluid']['name']!r}, expected one of {', '.join(FLUIDS)}")
+        return False
+    room, target, water = data["room"], data["target"], data["cap_water"]
+    t_air = room["air_temperature"]
+    eq = fluid.vapour_pressure
+    if not eq.t_min <= t_air <= eq.t_max:
+        v.error("room.air_temperature", f"got {t_air!r} K, expected a temperature inside {fluid.name}'s "
+                f"saturation-pressure data range ({eq.t_min:g}-{eq.t_max:g} K)")
+    if room["convection"] == "given" and "heat_transfer_coefficient" not in room:
+        v.error("room.heat_transfer_coefficient", "missing: convection = 'given' needs it", line_path="room")
+    if room["convection"] == "forced" and room["air_speed"] <= 0.0:
+        v.error("room.air_speed", "got 0, expected a positive air speed for convection = 'forced' (or use 'mixed')")
+    data["initial"].setdefault("temperature", t_air)
+    room.setdefault("surroundings_temperature", t_air)
+    water.setdefault("reservoir_temperature", t_air)
+    data["second_bulb"].setdefault("initial_temperature", t_air)
+    if ("column_height" in target) == ("pressure_drop" in target):
+        v.error("target", "expected exactly one of column_height (m) or pressure_drop (Pa)")
+    if not water["residual_saturation"] < water["critical_saturation"] <= 1.0:
+        v.error("cap_water.critical_saturation", f"got {water['critical_saturation']!r}, expected more than "
+                f"residual_saturation ({water['residual_saturation']!r})")
+    if water["rewettings"] and water["mode"] != "charge":
+        v.error("cap_water.rewettings", "rewettings need mode = 'charge' (a reservoir keeps the cap wet anyway)")
+    end = data["time"]["end"]
+    for i, w in enumerate(water["rewettings"]):
+        if not 0.0 < w["time"] < end:
+            v.error(f"cap_water.rewettings[{i}].time", f"got {w['time']!r}, expected a time in (0, {end!r}) s")
+    for p in data["fluid"]["condensing_patches"]:
+        if p not in patches:
+            v.error("fluid.condensing_patches", f"got {p!r}, expected patches of the vapour space "
+                    f"(one of {', '.join(patches)})")
+    outer = ("cap_outer", "cap_edge", "glass_outer", "neck_outer")
+    for i, hs in enumerate(data["heat_sources"]):
+        if hs["patch"] not in outer or hs["patch"] not in patches:
+            v.error(f"heat_sources[{i}].patch", f"got {hs['patch']!r}, expected an outer patch of the head "
+                    f"({', '.join(p for p in outer if p in patches)})")
+    return not v.problems

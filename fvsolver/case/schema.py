@@ -149,6 +149,97 @@ OUTPUT = table(
     Key("field_count", "integer", "Or: this many evenly spaced field outputs.", default=5, minimum=0),
 )
 
+ROOM = table(
+    "room", "The room around the head.",
+    num("air_temperature", "Air temperature (above freezing: ice is not modelled).", "K", REQUIRED, 274.15, 330.0),
+    num("relative_humidity", "Relative humidity of the air.", "", REQUIRED, 0.0, 1.0),
+    num("pressure", "Barometric pressure.", "Pa", 101325.0, 60000.0, 110000.0),
+    num("air_speed", "Air speed past the head.", "m/s", 0.0, 0.0, 30.0),
+    Key("convection", "string", "Outside heat transfer: sphere correlations or a given coefficient.",
+        default="mixed", choices=("mixed", "natural", "forced", "given")),
+    num("heat_transfer_coefficient", "Convection coefficient when convection = 'given'.", "W/(m2 K)", minimum=0.0),
+    num("surroundings_temperature", "Radiant temperature of the room (default: the air's).", "K", positive=True),
+    num("emissivity", "Emissivity of the head's outer surfaces (wet felt, glass: ~0.9).", "", 0.9, 0.0, 1.0),
+    num("lewis_number", "Lewis number override for the heat-mass analogy (default: from the air).", "",
+        positive=True),
+)
+
+HEAT_SOURCE = table(
+    "heat_source", "A heat flux imposed on an outer patch of the head (a lamp, sunlight).",
+    Key("patch", "string", "The patch it falls on.", default=REQUIRED),
+    num("heat_flux", "Heat flux into the surface.", "W/m2", REQUIRED),
+)
+
+CAP = table(
+    "cap", "The porous cap's make-up (its properties follow its water content).",
+    num("porosity", "Pore volume fraction.", "", 0.85, 0.05, 0.99),
+    num("fibre_density", "Density of the fibre material (wool ~1300).", "kg/m3", 1300.0, positive=True),
+    num("fibre_conductivity", "Conductivity of the fibre material (wool ~0.2).", "W/(m K)", 0.2, positive=True),
+    num("fibre_heat_capacity", "Specific heat of the fibre material (wool ~1360).", "J/(kg K)", 1360.0,
+        positive=True),
+    Key("conductivity_model", "string", "Mixing model for the wet cap's conductivity.", default="maxwell_eucken",
+        choices=("maxwell_eucken", "emt", "parallel", "series")),
+)
+
+REWETTING = table(
+    "rewetting", "Water added to the cap at a time.",
+    num("time", "When.", "s", REQUIRED, minimum=0.0),
+    num("mass", "How much water.", "kg", REQUIRED, positive=True),
+    num("temperature", "Temperature of the water added (hot or cold).", "K", REQUIRED, 274.15, 372.0),
+)
+
+CAP_WATER = table(
+    "cap_water", "The cap's water: kept wet from a reservoir, or a finite charge.",
+    Key("mode", "string", "reservoir: the cap stays at initial_saturation; charge: it dries as it evaporates.",
+        default="reservoir", choices=("reservoir", "charge")),
+    num("initial_saturation", "Fraction of the pores filled with water at the start.", "", 1.0, 0.0, 1.0),
+    num("critical_saturation", "Below this the drying rate falls (falling-rate period).", "", 0.3, 0.0, 1.0),
+    num("residual_saturation", "Water held too tightly to evaporate.", "", 0.02, 0.0, 1.0),
+    num("reservoir_temperature", "Temperature of the reservoir's water (default: the air's).", "K", None, 274.15,
+        372.0),
+    Key("rewettings", "tables", "Water added at given times (charge mode).", default=[], item=REWETTING),
+)
+
+FLUID = table(
+    "fluid", "The working fluid and the head's vapour space.",
+    Key("name", "string", "Working fluid (dichloromethane, diethyl ether, pentane, isopentane, methyl formate, "
+        "acetone).", default=REQUIRED),
+    num("vapour_volume", "Volume of the head's vapour space (default: the bulb's interior).", "m3", positive=True),
+    num("accommodation_coefficient", "Condensation (accommodation) coefficient in the Schrage relation.", "", 0.1,
+        0.0, 1.0, positive=True),
+    Key("condensation_model", "string", "kinetic (Hertz-Knudsen-Schrage) or its quasi-equilibrium limit.",
+        default="kinetic", choices=("kinetic", "equilibrium")),
+    num("non_condensable_pressure", "Partial pressure of air left in the head at the start.", "Pa", 0.0,
+        minimum=0.0),
+    num("initial_film", "Condensate on each inner face at the start.", "kg/m2", 0.0, minimum=0.0),
+    Key("condensing_patches", "strings", "Patches of the vapour space where vapour condenses.",
+        default=["inner_wall", "bore"]),
+)
+
+SECOND_BULB = table(
+    "second_bulb", "The second, warmer bulb the head is connected to.",
+    Key("mode", "string", "room: it stays at the air temperature; lumped: a thermal mass with losses and a "
+        "heater.", default="room", choices=("room", "lumped")),
+    num("heat_capacity", "Heat capacity of the bulb with its liquid.", "J/K", 60.0, positive=True),
+    num("loss_conductance", "Conductance from the bulb to the room (h A).", "W/K", 0.05, minimum=0.0),
+    num("heater_power", "Heat supplied to the bulb.", "W", 0.0),
+    num("initial_temperature", "Starting temperature (default: the air's).", "K", positive=True),
+)
+
+TARGET = table(
+    "target", "The pressure drop that lifts the column: a column height or a pressure.",
+    num("column_height", "Height of liquid column to lift.", "m", positive=True),
+    num("pressure_drop", "Pressure difference to reach (instead of a column height).", "Pa", positive=True),
+    Key("stop_when_reached", "boolean", "End the run when the target is reached.", default=True),
+)
+
+SAFETY = table(
+    "safety", "Limits that raise warnings (conservative defaults for sealed glass).",
+    num("max_absolute_pressure", "Largest absolute internal pressure before a warning.", "Pa", 120000.0,
+        positive=True),
+    num("max_glass_temperature", "Largest glass temperature before a warning.", "K", 323.15, positive=True),
+)
+
 CASE = table(
     "case", "An fvsolver case.",
     Key("schema_version", "integer", "Version of this case format.", default=REQUIRED,
@@ -156,12 +247,18 @@ CASE = table(
     Key("title", "string", "A short name for reports.", default=""),
     GEOMETRY,
     table("mesh", MESH.doc, *MESH.children, default={}),
-    Key("materials", "map", "Material properties by mesh material tag (glass, cap, ...).",
-        default=REQUIRED, item=MATERIAL),
-    table("initial", "Initial state.", num("temperature", "Uniform initial temperature.", "K", REQUIRED, positive=True)),
-    Key("boundary", "map", "Boundary conditions by patch name (the axis is always symmetry).",
-        default=REQUIRED, item=PATCH),
+    Key("materials", "map", "Material properties by mesh material tag (glass, cap, ...); with a [fluid], the "
+        "cap's come from [cap].", default=REQUIRED, item=MATERIAL),
+    table("initial", "Initial state.", num("temperature", "Uniform initial temperature (default: the room's air).",
+                                            "K", positive=True), default={}),
+    Key("boundary", "map", "Boundary conditions by patch name (the axis is always symmetry); with a [fluid], "
+        "the cap, the vapour-space walls and the bare outer glass are set by the device model.",
+        default={}, item=PATCH),
     Key("sources", "tables", "Volumetric heat sources.", default=[], item=SOURCE),
+    ROOM, CAP, CAP_WATER, FLUID, SECOND_BULB, TARGET,
+    Key("heat_sources", "tables", "Heat fluxes imposed on outer patches of the head.", default=[],
+        item=HEAT_SOURCE),
+    table("safety", SAFETY.doc, *SAFETY.children, default={}),
     table("time", "Simulated time.", num("end", "End of the simulation.", "s", REQUIRED, positive=True)),
     table("numerics", NUMERICS.doc, *NUMERICS.children, default={}),
     table("output", OUTPUT.doc, *OUTPUT.children, default={}),

@@ -1,0 +1,1 @@
+"""The device: wet cap, vapour space, condensation sink, second bulb and the target."""

@@ -1,0 +1,328 @@
+"""The device head coupled to its lumped states, advanced together in one implicit step.
+
+State vector y = [T (n_cells) | m_v | c (n_inner) | W | T_b]:
+
+* T: cell temperatures of glass and cap, K;
+* m_v: working-fluid vapour mass in the head's vapour space, kg;
+* c: condensate inventory of each inner-wall face, kg/m2;
+* W: water held by the cap, kg (constant when a reservoir keeps it wet);
+* T_b: temperature of the second bulb, K (constant when it follows the room).
+
+Conserved totals: the head's energy, the working fluid (m_v + sum A c, closed), the cap
+water, and the second bulb's energy.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+import scipy.sparse as sp
+
+from fvsolver.boundary import PatchCondition
+from fvsolver.conduction import ConductionProblem, Evaluation
+from fvsolver.device.spec import DeviceSpec
+from fvsolver.device.surfaces import CondensingWall, EvaporativeCap, RoomSurface
+from fvsolver.properties import convection, moist_air, porous
+from fvsolver.properties.fluids import UNIVERSAL_GAS_CONSTANT
+
+CAP_PATCHES = ("cap_outer", "cap_edge")
+ROOM_PATCHES = ("glass_outer", "neck_outer")
+
+
+@dataclass
+class DeviceEvaluation:
+    """Rates of every unknown and the pieces the Jacobian and the diagnostics need."""
+
+    rate: np.ndarray
+    conduction: Evaluation
+    context: dict
+    inflows: dict
+    grosses: dict
+    condensation: np.ndarray      # kg/(m2 s) on the inner faces (negative: evaporation)
+    evaporation: np.ndarray       # kg/(m2 s) on the cap faces
+    sensible: np.ndarray          # W into each cell from the water's sensible enthalpy
+    extras: dict = field(default_factory=dict)
+
+    def inflow(self, group: str) -> float:
+        return self.inflows[group]
+
+    def gross(self, group: str) -> float:
+        return self.grosses[group]
+
+    @property
+    def heat_in(self) -> float:
+        return self.inflows["energy"]
+
+    @property
+    def surface_temperature(self) -> np.ndarray:
+        return self.conduction.surface_temperature
+
+    @property
+    def boundary_heat(self) -> np.ndarray:
+        return self.conduction.boundary_heat
+
+    @property
+    def boundary_jacobian(self) -> np.ndarray:  # pragma: no cover - only affine problems use it
+        raise AttributeError("the device problem is never affine")
+
+
+class DeviceProblem:
+    """Glass and wet cap, vapour space, condensation sink, cap water and second bulb."""
+
+    exact_jacobian = False
+    constant_jacobian = False
+    linear = False
+
+    def __init__(self, mesh, materials: dict, conditions: list[PatchCondition], spec: DeviceSpec,
+                 sources: tuple = ()):
+        self.mesh, self.spec = mesh, spec
+        room = spec.room
+        self.cap_term = EvaporativeCap(room.air_temperature, room.vapour_density, room.emissivity,
+                                       room.surroundings_temperature)
+        self.wall_term = CondensingWall(spec.vapour.fluid, spec.vapour.accommodation,
+                                        spec.vapour.kinetic_multiplier)
+        coupled = {p: (self.cap_term,) for p in CAP_PATCHES if p in mesh.patch_names}
+        coupled.update({p: (self.wall_term,) for p in spec.vapour.patches})
+        given = {c.patch: c for c in conditions}
+        for p in ROOM_PATCHES:
+            if p in mesh.patch_names and p not in given:
+                flux = spec.room.extra_flux.get(p, 0.0)
+                coupled[p] = (RoomSurface(room.air_temperature, room.emissivity, room.surroundings_temperature,
+                                          flux),)
+        all_conditions = [c for c in conditions if c.patch not in coupled]
+        all_conditions += [PatchCondition(p, terms) for p, terms in coupled.items()]
+        self.conduction = ConductionProblem(mesh, materials, all_conditions, sources)
+
+        n = mesh.n_cells
+        self.n_cells = n
+        self.inner = np.concatenate([mesh.patch_faces(p) for p in spec.vapour.patches])
+        self.cap_faces = np.concatenate([mesh.patch_faces(p) for p in CAP_PATCHES if p in mesh.patch_names])
+        self.room_faces = np.concatenate([mesh.patch_faces(p) for p in ROOM_PATCHES if p in mesh.patch_names])
+        n_in = len(self.inner)
+        self.i_mv, self.i_c = n, np.arange(n + 1, n + 1 + n_in)
+        self.i_w, self.i_tb = n + 1 + n_in, n + 2 + n_in
+        self.n = n + n_in + 3
+        self.cap_cells = mesh.material_cells("cap")
+        self.cap_material = materials["cap"]
+        self.cap_volume = float(mesh.cell_volumes[self.cap_cells].sum())
+        self.pore_water_capacity = (self.cap_material.porosity * self.cap_volume
+                                    * self.cap_material.water_volumetric_heat / spec.cap_water.water_heat_capacity)
+        self.inner_area = mesh.boundary_areas[self.inner]
+        self.outer_diameter = spec.room.diameter
+        self.tolerance_scale = self._tolerance_scale()
+
+    # -- state ----------------------------------------------------------------------------------
+    def initial_state(self, temperature: float) -> np.ndarray:
+        s = self.spec
+        y = np.empty(self.n)
+        y[: self.n_cells] = temperature
+        y[self.i_mv] = s.vapour.vapour_mass(temperature)
+        y[self.i_c] = s.vapour.initial_film
+        y[self.i_w] = s.cap_water.initial_saturation * self.pore_water_capacity
+        y[self.i_tb] = s.second_bulb.initial_temperature
+        return y
+
+    def _tolerance_scale(self) -> np.ndarray:
+        scale = np.ones(self.n)
+        m0 = self.spec.vapour.vapour_mass(self.spec.room.air_temperature)
+        scale[self.i_mv] = 0.04 * m0             # about one kelvin's worth of saturated vapour
+        scale[self.i_c] = max(self.spec.vapour.initial_film, 1e-2)  # inventories do not steer the steps
+        scale[self.i_w] = 0.01 * max(self.pore_water_capacity, 1e-9)
+        return scale
+
+    def saturation(self, W: float) -> float:
+        return W / self.pore_water_capacity
+
+    def vapour_temperature(self, T: np.ndarray) -> float:
+        """Area-weighted mean temperature of the cells along the vapour space's walls."""
+        cells = self.mesh.boundary_cell[self.inner]
+        return float(np.average(T[cells], weights=self.inner_area))
+
+    def pressures(self, y: np.ndarray) -> dict:
+        """Head and second-bulb pressures (Pa) and their difference."""
+        T = y[: self.n_cells]
+        t_v = self.vapour_temperature(T)
+        vap = self.spec.vapour
+        p_v = y[self.i_mv] * UNIVERSAL_GAS_CONSTANT * t_v / (vap.fluid.molar_mass * vap.volume)
+        p_head = p_v + vap.non_condensable_pressure(t_v)
+        t_b = y[self.i_tb]
+        p_bulb = float(vap.fluid.saturation_pressure(t_b)) + vap.non_condensable_pressure(t_b)
+        return {"head_vapour_pa": p_v, "head_pa": p_head, "second_bulb_pa": p_bulb,
+                "pressure_drop_pa": p_bulb - p_head, "vapour_temperature_k": t_v}
+
+    def context(self, y: np.ndarray) -> dict:
+        T = y[: self.n_cells]
+        spec, room = self.spec, self.spec.room
+        s = self.saturation(y[self.i_w])
+        wet = float(porous.drying_rate_factor(np.clip(s, 0.0, 1.0), spec.cap_water.critical_saturation,
+                                              spec.cap_water.residual_saturation))
+        outer = np.concatenate([self.cap_faces, self.room_faces])
+        t_surf = float(np.average(T[self.mesh.boundary_cell[outer]], weights=self.mesh.boundary_areas[outer]))
+        t_surf = float(np.clip(t_surf, 274.0, 320.0))  # the correlations' range; iterates may stray
+        if room.convection == "given":
+            h = room.heat_transfer_coefficient
+        else:
+            h = float(convection.sphere_convection(self.outer_diameter, t_surf, room.air_temperature,
+                                                   room.pressure, room.air_speed, room.convection).h)
+        t_film = 0.5 * (t_surf + room.air_temperature)
+        h_m = float(convection.mass_transfer_coefficient(h, t_film, room.pressure, room.lewis_number))
+        inventory = np.zeros(self.mesh.n_boundary)
+        inventory[self.inner] = y[self.i_c]
+        p = self.pressures(y)
+        return {"cap": {"h": h, "h_m": h_m, "wet_fraction": wet, "saturation": s},
+                "room": {"h": h},
+                "vapour": {"pressure": p["head_vapour_pa"], "temperature": p["vapour_temperature_k"],
+                           "inventory": inventory}}
+
+    # -- the stepper's interface -------------------------------------------------------------------
+    def balance_groups(self) -> dict:
+        return {"energy": slice(0, self.n_cells), "working_fluid": slice(self.i_mv, self.i_w),
+                "cap_water": slice(self.i_w, self.i_w + 1), "second_bulb_energy": slice(self.i_tb, self.i_tb + 1)}
+
+    def capacity(self, y: np.ndarray):
+        n = self.n_cells
+        ctx = self.context(y)
+        m = np.empty(self.n)
+        dm = np.empty(self.n)
+        m[:n], dm[:n] = self.conduction.capacity(y[:n], ctx)
+        m[self.i_mv], dm[self.i_mv] = y[self.i_mv], 1.0
+        m[self.i_c], dm[self.i_c] = self.inner_area * y[self.i_c], self.inner_area
+        m[self.i_w], dm[self.i_w] = y[self.i_w], 1.0
+        cb = self.spec.second_bulb.heat_capacity
+        m[self.i_tb], dm[self.i_tb] = cb * y[self.i_tb], cb
+        return m, dm
+
+    def _water_sensible(self, T, evaporation_total, ctx):
+        """W into each cap cell from the sensible enthalpy of the water leaving or arriving."""
+        out = np.zeros(self.n_cells)
+        dout = np.zeros(self.n_cells)
+        cells = self.cap_cells
+        v = self.mesh.cell_volumes[cells]
+        cw = self.spec.cap_water
+        if cw.mode == "charge":
+            # water leaving cell P takes its share of the stored sensible energy with it
+            ds_dt = -evaporation_total / self.pore_water_capacity
+            de_ds = self.cap_material.denergy_dsaturation(T[cells])
+            out[cells] = v * de_ds * ds_dt
+            dout[cells] = v * self.cap_material.porosity * (
+                self.cap_material.water_volumetric_heat - 1.2 * 1006.0) * ds_dt
+        else:
+            # the reservoir replaces what evaporates, with water at its own temperature
+            share = evaporation_total * v / self.cap_volume * cw.water_heat_capacity
+            out[cells] = share * (cw.reservoir_temperature - T[cells])
+            dout[cells] = -share
+        return out, dout
+
+    def evaluate(self, y: np.ndarray, time: float) -> DeviceEvaluation:
+        n, mesh = self.n_cells, self.mesh
+        T = y[:n]
+        ctx = self.context(y)
+        ev = self.conduction.evaluate(T, time, ctx)
+        t_s = ev.surface_temperature
+        j, dj_dt, dj_dp, dj_dc = self.wall_term.mass_flux(t_s[self.inner], self.inner, ctx)
+        m_e, dme_dt = self.cap_term.mass_flux(t_s[self.cap_faces], ctx)
+        area_cap = mesh.boundary_areas[self.cap_faces]
+        evap_total = float(np.dot(area_cap, m_e))
+        sensible, dsensible = self._water_sensible(T, evap_total, ctx)
+        rate = np.zeros(self.n)
+        rate[:n] = ev.rate + sensible
+        aj = self.inner_area * j
+        rate[self.i_mv] = -aj.sum()
+        rate[self.i_c] = aj
+        if self.spec.cap_water.mode == "charge":
+            rate[self.i_w] = -evap_total
+        bulb = self.spec.second_bulb
+        if bulb.mode == "lumped":
+            rate[self.i_tb] = bulb.loss_conductance * (self.spec.room.air_temperature - y[self.i_tb]) + bulb.heater_power
+        inflows = {"energy": ev.heat_in + float(sensible.sum()), "working_fluid": 0.0,
+                   "cap_water": float(rate[self.i_w]), "second_bulb_energy": float(rate[self.i_tb])}
+        grosses = {"energy": ev.gross_heat + float(np.abs(sensible).sum()),
+                   "working_fluid": float(np.abs(aj).sum()) + 1e-300,
+                   "cap_water": abs(evap_total) + 1e-300,
+                   "second_bulb_energy": abs(float(rate[self.i_tb])) + bulb.loss_conductance + 1e-300}
+        return DeviceEvaluation(rate, ev, ctx, inflows, grosses, j, m_e, sensible,
+                                {"dj_dt": dj_dt, "dj_dp": dj_dp, "dj_dc": dj_dc, "dme_dt": dme_dt,
+                                 "dsensible": dsensible, "T": T})
+
+    def jacobian(self, alpha0: float, dt: float, dm: np.ndarray, ev: DeviceEvaluation) -> sp.csr_matrix:
+        """J = alpha0 dm/dy - dt dF/dy; the weak dependences (transfer coefficients and the cap's
+        conductivity on the state, the deferred non-orthogonal correction) are left out."""
+        n, mesh, x = self.n_cells, self.mesh, ev.extras
+        c = ev.conduction
+        jtt = self.conduction.jacobian(alpha0, dt, dm[:n], c)
+        jtt = jtt - sp.diags(dt * x["dsensible"], format="csr")
+        rows, cols, vals = [], [], []
+
+        def add(r, cl, v):
+            r, cl, v = np.broadcast_arrays(np.atleast_1d(r), np.atleast_1d(cl), np.atleast_1d(v))
+            rows.append(r.ravel()), cols.append(cl.ravel()), vals.append(v.ravel())
+
+        # condensing inner faces
+        b = self.inner
+        P = mesh.boundary_cell[b]
+        kap, g1 = c.surface_conductance[b], c.surface_derivative[b]
+        area = self.inner_area
+        tau = kap / (kap - g1)
+        lat = self.wall_term.latent_heat(c.surface_temperature[b])
+        vap = self.spec.vapour
+        dp_dm = UNIVERSAL_GAS_CONSTANT * ev.context["vapour"]["temperature"] / (vap.fluid.molar_mass * vap.volume)
+        dts_dp = lat * x["dj_dp"] / (kap - g1)
+        dts_dc = lat * x["dj_dc"] / (kap - g1)
+        dJ_dT = x["dj_dt"] * tau
+        dJ_dm = (x["dj_dp"] + x["dj_dt"] * dts_dp) * dp_dm
+        dJ_dc = x["dj_dc"] + x["dj_dt"] * dts_dc
+        add(P, self.i_mv, -dt * area * kap * dts_dp * dp_dm)
+        add(P, self.i_c, -dt * area * kap * dts_dc)
+        add(self.i_mv, P, dt * area * dJ_dT)
+        add(self.i_mv, self.i_c, dt * area * dJ_dc)
+        add(self.i_c, P, -dt * area * dJ_dT)
+        add(self.i_c, self.i_mv, -dt * area * dJ_dm)
+        add(self.i_c, self.i_c, alpha0 * area - dt * area * dJ_dc)
+        # the vapour temperature (the wall cells' mean) sets p_v = m_v R T_v / V: a rank-one coupling
+        # of every wall face to every wall cell
+        p_v, t_v = ev.context["vapour"]["pressure"], ev.context["vapour"]["temperature"]
+        per_tv = 0.5 * p_v / t_v  # d(p_v / sqrt(T_v)) / dT_v at fixed m_v, in units of dp_v / sqrt(T_v)
+        dts_dtv = lat * x["dj_dp"] * per_tv / (kap - g1)
+        dJ_dtv = x["dj_dp"] * per_tv + x["dj_dt"] * dts_dtv
+        weight = area / area.sum()
+        add(np.repeat(P, len(P)), np.tile(P, len(P)), np.outer(-dt * area * kap * dts_dtv, weight).ravel())
+        add(self.i_mv, P, dt * float(np.sum(area * dJ_dtv)) * weight)
+        add(np.repeat(self.i_c, len(P)), np.tile(P, len(P)), np.outer(-dt * area * dJ_dtv, weight).ravel())
+        lumped = np.zeros(self.n - n)
+        lumped[0] = alpha0 + dt * float(np.sum(area * dJ_dm))
+        # the cap's water
+        if self.spec.cap_water.mode == "charge":
+            bc = self.cap_faces
+            Pc = mesh.boundary_cell[bc]
+            kc, gc = c.surface_conductance[bc], c.surface_derivative[bc]
+            ac = mesh.boundary_areas[bc]
+            s = float(ev.context["cap"]["saturation"])
+            cw = self.spec.cap_water
+            eps = 1e-6
+            dw_ds = float((porous.drying_rate_factor(min(s + eps, 1.0), cw.critical_saturation, cw.residual_saturation)
+                           - porous.drying_rate_factor(max(s - eps, 0.0), cw.critical_saturation,
+                                                       cw.residual_saturation)) / (min(s + eps, 1.0) - max(s - eps, 0.0)))
+            dw_dW = dw_ds / self.pore_water_capacity
+            wet = max(ev.context["cap"]["wet_fraction"], 1e-12)
+            dq_dw = self.cap_term.dheat_flux_dwet(c.surface_temperature[bc], ev.context)
+            dts_dW = dq_dw * dw_dW / (kc - gc)
+            dme_dw = ev.evaporation / wet
+            dME_dT = x["dme_dt"] * kc / (kc - gc)
+            dME_dW = dme_dw * dw_dW + x["dme_dt"] * dts_dW
+            add(Pc, self.i_w, -dt * ac * kc * dts_dW)
+            add(self.i_w, Pc, dt * ac * dME_dT)
+            lumped[self.i_w - n] = alpha0 + dt * float(np.sum(ac * dME_dW))
+            cells = self.cap_cells
+            de_dW = self.cap_material.denergy_dsaturation(x["T"][cells]) / self.pore_water_capacity
+            add(cells, self.i_w, alpha0 * mesh.cell_volumes[cells] * de_dW)
+        else:
+            lumped[self.i_w - n] = alpha0
+        bulb = self.spec.second_bulb
+        lumped[self.i_tb - n] = alpha0 * bulb.heat_capacity + (dt * bulb.loss_conductance if bulb.mode == "lumped" else 0.0)
+        # the lumped rows' diagonals that add() did not give (m_v, W, T_b), and the c diagonal above
+        diag_rows = np.array([self.i_mv, self.i_w, self.i_tb])
+        add(diag_rows, diag_rows, lumped[diag_rows - n])
+        r, cl, v = np.concatenate(rows), np.concatenate(cols), np.concatenate(vals)
+        extra = sp.coo_matrix((v, (r, cl)), shape=(self.n, self.n))
+        full = sp.bmat([[jtt, None], [None, sp.csr_matrix((self.n - n, self.n - n))]], format="csr")
+        return (full + extra.tocsr()).tocsr()
