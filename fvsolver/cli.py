@@ -64,8 +64,18 @@ def _run(args) -> int:
     s = result.summary
     _say(args, f"{s['title'] or args.case.stem}: {s['status']} at t = {s['end_time_s']:.6g} s "
                f"({s['n_steps']} steps, {s['n_cells']} cells)")
+    if s["target_reached"] is not None:
+        if s["target_reached"]:
+            _say(args, f"  target {s['target_pressure_drop_pa']:.0f} Pa reached at t = {s['time_to_target_s']:.2f} s")
+        else:
+            _say(args, f"  target {s['target_pressure_drop_pa']:.0f} Pa NOT reached: {s['stall_reason']}")
+        _say(args, f"  largest internal pressure {s['max_internal_pressure_pa']:.0f} Pa, largest glass temperature "
+                   f"{s['max_glass_temperature_k']:.2f} K")
+        for w in s["warnings"]:
+            _say(args, f"  WARNING: {w}")
+    mass = ", ".join(f"{k} {v:.1e}" for k, v in s["mass_balance_relative_error"].items())
     _say(args, f"  temperature {s['min_temperature_k']:.3f} .. {s['max_temperature_k']:.3f} K; "
-               f"energy balance error {s['energy_balance_relative_error']:.2e}")
+               f"energy balance error {s['energy_balance_relative_error']:.2e}" + (f"; mass {mass}" if mass else ""))
     _say(args, f"  outputs in {out}")
     return EXIT_INTERRUPTED if s["status"] == "interrupted" else EXIT_OK
 

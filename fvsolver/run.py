@@ -32,17 +32,20 @@ class Result:
     summary : dict, the content of summary.json
     history : dict of str to (n_rows,) arrays, the columns of history.csv
     temperature : (n_cells,) K, the final field
+    state : (n_state,) the final state (temperatures, then the lumped unknowns of a device)
     setup : Setup
     """
 
     summary: dict
     history: dict
     temperature: np.ndarray
+    state: np.ndarray
     setup: Setup = field(repr=False)
 
 
-def _history_row(setup: Setup, stepper: TimeStepper) -> dict:
-    T, mesh = stepper.y, setup.mesh
+def _history_row(setup: Setup, stepper: TimeStepper, monitor) -> dict:
+    mesh = setup.mesh
+    T = stepper.y[: mesh.n_cells]
     row = {"time_s": stepper.t, "step_s": stepper.last_dt, "min_temperature_k": float(T.min()),
            "max_temperature_k": float(T.max())}
     for i, name in enumerate(mesh.material_names):
@@ -50,13 +53,17 @@ def _history_row(setup: Setup, stepper: TimeStepper) -> dict:
         row[f"mean_{name}_temperature_k"] = float(np.average(T[sel], weights=mesh.cell_volumes[sel]))
     ev = stepper.last_evaluation
     row["heat_in_w"] = float(ev.heat_in) if ev is not None else 0.0
-    row["energy_balance_error"] = float(stepper.balance_error.get("energy", 0.0))
+    if monitor is not None:
+        row.update(monitor.history_columns(stepper))
+    for group, err in stepper.balance_error.items():
+        row[f"{group}_balance_error"] = float(err)
     return row
 
 
 def _write_csv(path: Path, rows: list[dict]) -> None:
     buf = io.StringIO()
-    writer = csv.DictWriter(buf, fieldnames=list(rows[0]))
+    names = list(dict.fromkeys(k for r in rows for k in r))
+    writer = csv.DictWriter(buf, fieldnames=names, restval="")
     writer.writeheader()
     for r in rows:
         writer.writerow({k: (f"{v:.10g}" if isinstance(v, float) else v) for k, v in r.items()})
@@ -67,19 +74,35 @@ class FieldWriter:
     """One VTU per output time and a PVD collection rewritten after each."""
 
     def __init__(self, folder: Path, setup: Setup):
-        self.folder, self.setup, self.entries = folder, setup, []
+        self.folder, self.setup, self.entries, self.fields = folder, setup, [], []
 
-    def write(self, t: float, T: np.ndarray, ev) -> None:
+    def write(self, t: float, y: np.ndarray, ev) -> None:
         from fvsolver.vtk_io import write_fields, write_pvd
 
-        mesh = self.setup.mesh
+        mesh, setup = self.setup.mesh, self.setup
+        T = y[: mesh.n_cells]
+        problem = setup.problem
+        conduction_ev = getattr(ev, "conduction", ev)
+        cell = {"temperature": T, "heat_flux": heat_flux_vectors(setup.conduction, T, conduction_ev)}
+        areas = mesh.boundary_areas
+        faces = {"surface_temperature": conduction_ev.surface_temperature,
+                 "surface_heat_flux": np.divide(conduction_ev.boundary_heat, areas, out=np.zeros(mesh.n_boundary),
+                                                where=areas > 0)}
+        if setup.device is not None:
+            saturation = np.zeros(mesh.n_cells)
+            saturation[problem.cap_cells] = problem.saturation(y[problem.i_w])
+            cell["water_saturation"] = saturation
+            evap = np.zeros(mesh.n_boundary)
+            cond = np.zeros(mesh.n_boundary)
+            if hasattr(ev, "evaporation"):
+                evap[problem.cap_faces] = ev.evaporation
+                cond[problem.inner] = ev.condensation
+            faces["evaporative_mass_flux"] = evap
+            faces["condensation_mass_flux"] = cond
         name = f"fields_{len(self.entries):04d}.vtu"
-        cell = {"temperature": T, "heat_flux": heat_flux_vectors(self.setup.problem, T, ev)}
-        faces = {"surface_temperature": ev.surface_temperature,
-                 "surface_heat_flux": np.divide(ev.boundary_heat, mesh.boundary_areas,
-                                                out=np.zeros(mesh.n_boundary), where=mesh.boundary_areas > 0)}
         write_fields(self.folder / name, mesh, cell, faces)
         self.entries.append((t, name))
+        self.fields.append((t, T.copy()))
         write_pvd(self.folder / "fields.pvd", self.entries)
 
 
@@ -89,6 +112,9 @@ def prepare_output(out: Path, overwrite: bool) -> Path:
         raise CaseError(f"--out {out}: the folder exists and is not empty (expected a new or empty folder); "
                         "choose another folder or pass --overwrite")
     out.mkdir(parents=True, exist_ok=True)
+    stale = out / "summary.json"
+    if stale.exists():  # never leave an old summary that claims a result for this run
+        stale.unlink()
     return out
 
 
@@ -101,12 +127,19 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
     case : Case, from :func:`fvsolver.load_case`
     out : folder for the outputs (None: nothing is written)
     overwrite : allow a non-empty output folder
-    progress : callable(stepper) called after every accepted step, or None
+    progress : callable(stepper, monitor) called after every accepted step, or None
     """
     folder = prepare_output(out, overwrite) if out is not None else None
     setup = build(case)
     stepper = TimeStepper(setup.problem, setup.initial, 0.0, setup.end_time, setup.options,
                           stop_times=setup.field_times)
+    monitor = None
+    rewettings = ()
+    if setup.device is not None:
+        from fvsolver.device.monitor import DeviceMonitor
+
+        monitor = DeviceMonitor(setup.problem, 0.0, setup.initial)
+        rewettings = setup.device.cap_water.rewettings
     if folder is not None:
         data = thaw(case.data)
         data.pop("_folder", None)
@@ -118,42 +151,106 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
     fields = FieldWriter(folder, setup) if folder is not None else None
     if fields is not None:
         fields.write(0.0, setup.initial, setup.problem.evaluate(setup.initial, 0.0))
-    rows = [_history_row(setup, stepper)]
-    worst_balance = 0.0
+    rows = [_history_row(setup, stepper, monitor)]
+    worst: dict[str, float] = {}
     status, reason = "complete", None
     try:
         while stepper.step():
-            rows.append(_history_row(setup, stepper))
-            worst_balance = max(worst_balance, stepper.balance_error.get("energy", 0.0))
+            for g, err in stepper.balance_error.items():
+                worst[g] = max(worst.get(g, 0.0), float(err))
+            reached = monitor.after_step(stepper) if monitor is not None else False
+            for when, mass, temperature in rewettings:
+                if stepper.t == when:
+                    stepper.reset(monitor.rewet(stepper.y, mass, temperature))
+            rows.append(_history_row(setup, stepper, monitor))
             if fields is not None and np.any(np.isclose(stepper.t, setup.field_times, rtol=0, atol=1e-12)):
                 fields.write(stepper.t, stepper.y, stepper.last_evaluation)
                 _write_csv(folder / "history.csv", rows)
             if progress is not None:
-                progress(stepper)
+                progress(stepper, monitor)
+            if reached and setup.device.target.stop_when_reached:
+                break
         if stepper.status == "failed":
             status, reason = "failed", stepper.message
         else:
-            rows.append(_history_row(setup, stepper))
-            worst_balance = max(worst_balance, stepper.balance_error.get("energy", 0.0))
-            if fields is not None:
+            for g, err in stepper.balance_error.items():
+                worst[g] = max(worst.get(g, 0.0), float(err))
+            if fields is not None and (not fields.entries or fields.entries[-1][0] != stepper.t):
                 fields.write(stepper.t, stepper.y, stepper.last_evaluation)
     except KeyboardInterrupt:
         status, reason = "interrupted", f"stopped by the user at t = {stepper.t:.6g} s"
-    summary = {
-        "status": status, "reason": reason, "title": case["title"], "end_time_s": stepper.t,
-        "n_cells": setup.mesh.n_cells, "n_steps": stepper.counters.steps,
-        "n_rejected_steps": stepper.counters.rejected, "n_factorisations": stepper.counters.factorisations,
-        "energy_balance_relative_error": worst_balance,
-        "min_temperature_k": float(stepper.y.min()), "max_temperature_k": float(stepper.y.max()),
-    }
-    history = {k: np.array([r[k] for r in rows]) for k in rows[0]}
+    summary = _summary(case, setup, stepper, monitor, worst, status, reason)
+    history = {k: np.array([r.get(k, np.nan) for r in rows]) for k in rows[-1]}
     if folder is not None:
         _write_csv(folder / "history.csv", rows)
+        _write_plots_and_report(folder, case, setup, summary, history, fields)
         atomic_write_text(folder / "summary.json", json.dumps(summary, indent=2))
-    result = Result(summary, history, stepper.y.copy(), setup)
+    result = Result(summary, history, stepper.y[: setup.mesh.n_cells].copy(), stepper.y.copy(), setup)
     if status == "failed":
-        raise SolverError(f"the run failed: {reason} (last good fields are in the outputs)")
+        raise SolverError(f"the run failed: {reason} (the last good fields are in the outputs)")
     return result
+
+
+def _summary(case, setup, stepper, monitor, worst, status, reason) -> dict:
+    T = stepper.y[: setup.mesh.n_cells]
+    summary = {
+        "status": status, "reason": reason, "title": case["title"], "end_time_s": stepper.t,
+        "target_reached": None, "time_to_target_s": None, "target_pressure_drop_pa": None,
+        "max_pressure_drop_pa": None, "stall_reason": None,
+        "energy_balance_relative_error": worst.get("energy", 0.0),
+        "mass_balance_relative_error": {g: e for g, e in worst.items() if g != "energy"},
+        "n_cells": setup.mesh.n_cells, "n_steps": stepper.counters.steps,
+        "n_rejected_steps": stepper.counters.rejected, "n_newton_iterations": stepper.counters.newton_iterations,
+        "min_temperature_k": float(T.min()), "max_temperature_k": float(T.max()),
+        "warnings": [],
+    }
+    if monitor is not None:
+        reached = monitor.time_to_target is not None
+        summary.update({
+            "target_reached": reached, "time_to_target_s": monitor.time_to_target,
+            "target_pressure_drop_pa": monitor.target(stepper.y), "max_pressure_drop_pa": monitor.max_pressure_drop,
+            "stall_reason": None if reached or status != "complete" else monitor.stall_reason(stepper.y, stepper.t),
+            "max_internal_pressure_pa": monitor.max_absolute_pressure,
+            "max_glass_temperature_k": monitor.max_glass_temperature,
+            "warnings": monitor.warnings(),
+            "water_added_kg": monitor.added_water, "energy_added_by_rewetting_j": monitor.added_energy,
+        })
+        from fvsolver.device.monitor import room_summary
+
+        summary["room"] = room_summary(setup.device.room)
+    return summary
+
+
+def _write_plots_and_report(folder: Path, case, setup, summary, history, fields) -> None:
+    from fvsolver.outputs.report import write_report
+    from fvsolver.plotting import history_plot, temperature_field_plot
+
+    plots = []
+    if fields is not None and fields.fields:
+        chosen = fields.fields if len(fields.fields) <= 4 else [fields.fields[i] for i in
+                                                                 np.linspace(0, len(fields.fields) - 1, 4).astype(int)]
+        temperature_field_plot(setup.mesh, [T for _, T in chosen], folder / "temperature_field.png",
+                               times=[t for t, _ in chosen], title=case["title"])
+        plots.append("temperature_field.png")
+    if "pressure_drop_pa" in history:
+        history_plot(history, folder / "history.png", summary["target_pressure_drop_pa"],
+                     summary["time_to_target_s"], title=case["title"])
+        plots.append("history.png")
+    write_report(folder, summary, case["title"] or (case.path.stem if case.path else "case"), _inputs(case), plots)
+
+
+def _inputs(case) -> dict:
+    d = case.data
+    out = {"geometry": d["geometry"]["shape"], "end time (s)": d["time"]["end"]}
+    if "room" in d:
+        r = d["room"]
+        out.update({"room air temperature (K)": r["air_temperature"], "relative humidity (-)": r["relative_humidity"],
+                    "air speed (m/s)": r["air_speed"], "convection": r["convection"],
+                    "working fluid": d["fluid"]["name"], "cap water": d["cap_water"]["mode"],
+                    "second bulb": d["second_bulb"]["mode"]})
+        t = d["target"]
+        out["target"] = (f"column {t['column_height']} m" if "column_height" in t else f"{t['pressure_drop']} Pa")
+    return out
 
 
 def _versions() -> dict:

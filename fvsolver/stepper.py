@@ -199,6 +199,17 @@ class TimeStepper:
         if self.status == "failed":
             raise SolverError(self.message)
 
+    def reset(self, y: np.ndarray, dt: float | None = None) -> None:
+        """Restart from a changed state at the current time (water added, a switch thrown):
+        the history is dropped, so the next step is a backward-Euler start."""
+        self.y = np.array(y, dtype=float)
+        m, _ = self.problem.capacity(self.y)
+        self._history = _History([self.t], [self.y.copy()], [m])
+        self._dts = []
+        self._inflow = {g: 0.0 for g in self._groups}
+        self._f0 = None
+        self.dt = float(dt if dt is not None else self.options.initial_step)
+
     def dense(self, t: float) -> np.ndarray:
         """State at a time inside the last step, by the scheme's interpolating polynomial."""
         h = self._history
@@ -337,8 +348,9 @@ class TimeStepper:
         w_new = {}
         for g, sl in self._groups.items():
             w_new[g] = (dt * inflow[g] + a2 * self._inflow[g]) / a0
-            stored = float(m_new[sl].sum() - h.m[0][sl].sum())
-            scale = max(abs(stored), dt * self._gross[g], 1e-300)
+            stored = float((m_new[sl] - h.m[0][sl]).sum())  # differences first: no cancellation of totals
+            # relative to the change, the gross exchange, or the round-off level of the total itself
+            scale = max(abs(stored), dt * self._gross[g], 1e-13 * float(np.abs(m_new[sl]).sum()), 1e-300)
             self.balance_error[g] = abs(stored - w_new[g]) / scale
         err = 0.0
         if opt.adaptive:

@@ -3,7 +3,7 @@
 State vector y = [T (n_cells) | m_v | c (n_inner) | W | T_b]:
 
 * T: cell temperatures of glass and cap, K;
-* m_v: working-fluid vapour mass in the head's vapour space, kg;
+* m_v: working-fluid vapour mass in the head's vapour space, kg, as its change from the fill;
 * c: condensate inventory of each inner-wall face, kg/m2;
 * W: water held by the cap, kg (constant when a reservoir keeps it wet);
 * T_b: temperature of the second bulb, K (constant when it follows the room).
@@ -13,7 +13,7 @@ water, and the second bulb's energy.
 """
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 import scipy.sparse as sp
@@ -81,7 +81,8 @@ class DeviceProblem:
                                        room.surroundings_temperature)
         self.wall_term = CondensingWall(spec.vapour.fluid, spec.vapour.accommodation,
                                         spec.vapour.kinetic_multiplier)
-        coupled = {p: (self.cap_term,) for p in CAP_PATCHES if p in mesh.patch_names}
+        coupled = {p: (replace(self.cap_term, extra_flux=room.extra_flux.get(p, 0.0)),)
+                   for p in CAP_PATCHES if p in mesh.patch_names}
         coupled.update({p: (self.wall_term,) for p in spec.vapour.patches})
         given = {c.patch: c for c in conditions}
         for p in ROOM_PATCHES:
@@ -95,7 +96,7 @@ class DeviceProblem:
 
         n = mesh.n_cells
         self.n_cells = n
-        self.inner = np.concatenate([mesh.patch_faces(p) for p in spec.vapour.patches])
+        self.inner = np.concatenate([mesh.patch_faces(p) for p in spec.vapour.patches] + [np.zeros(0, dtype=np.int64)])
         self.cap_faces = np.concatenate([mesh.patch_faces(p) for p in CAP_PATCHES if p in mesh.patch_names])
         self.room_faces = np.concatenate([mesh.patch_faces(p) for p in ROOM_PATCHES if p in mesh.patch_names])
         n_in = len(self.inner)
@@ -109,6 +110,7 @@ class DeviceProblem:
                                     * self.cap_material.water_volumetric_heat / spec.cap_water.water_heat_capacity)
         self.inner_area = mesh.boundary_areas[self.inner]
         self.outer_diameter = spec.room.diameter
+        self.vapour_reference = spec.vapour.vapour_mass(spec.vapour.initial_temperature)
         self.tolerance_scale = self._tolerance_scale()
 
     # -- state ----------------------------------------------------------------------------------
@@ -116,7 +118,10 @@ class DeviceProblem:
         s = self.spec
         y = np.empty(self.n)
         y[: self.n_cells] = temperature
-        y[self.i_mv] = s.vapour.vapour_mass(temperature)
+        # the vapour mass is carried as its change from the initial fill, so that its round-off
+        # (and so the working-fluid balance) is set by the change, not by the whole fill
+        self.vapour_reference = s.vapour.vapour_mass(temperature)
+        y[self.i_mv] = 0.0
         y[self.i_c] = s.vapour.initial_film
         y[self.i_w] = s.cap_water.initial_saturation * self.pore_water_capacity
         y[self.i_tb] = s.second_bulb.initial_temperature
@@ -130,11 +135,17 @@ class DeviceProblem:
         scale[self.i_w] = 0.01 * max(self.pore_water_capacity, 1e-9)
         return scale
 
+    def vapour_mass(self, y: np.ndarray) -> float:
+        """Working-fluid vapour in the head, kg."""
+        return self.vapour_reference + float(y[self.i_mv])
+
     def saturation(self, W: float) -> float:
         return W / self.pore_water_capacity
 
     def vapour_temperature(self, T: np.ndarray) -> float:
         """Area-weighted mean temperature of the cells along the vapour space's walls."""
+        if self.inner.size == 0:  # no condensing wall: the vapour keeps its initial temperature
+            return self.spec.vapour.initial_temperature
         cells = self.mesh.boundary_cell[self.inner]
         return float(np.average(T[cells], weights=self.inner_area))
 
@@ -143,7 +154,7 @@ class DeviceProblem:
         T = y[: self.n_cells]
         t_v = self.vapour_temperature(T)
         vap = self.spec.vapour
-        p_v = y[self.i_mv] * UNIVERSAL_GAS_CONSTANT * t_v / (vap.fluid.molar_mass * vap.volume)
+        p_v = self.vapour_mass(y) * UNIVERSAL_GAS_CONSTANT * t_v / (vap.fluid.molar_mass * vap.volume)
         p_head = p_v + vap.non_condensable_pressure(t_v)
         t_b = y[self.i_tb]
         p_bulb = float(vap.fluid.saturation_pressure(t_b)) + vap.non_condensable_pressure(t_b)
@@ -176,8 +187,13 @@ class DeviceProblem:
 
     # -- the stepper's interface -------------------------------------------------------------------
     def balance_groups(self) -> dict:
-        return {"energy": slice(0, self.n_cells), "working_fluid": slice(self.i_mv, self.i_w),
-                "cap_water": slice(self.i_w, self.i_w + 1), "second_bulb_energy": slice(self.i_tb, self.i_tb + 1)}
+        """Conserved totals; the cap water and the second bulb count only when they can change."""
+        groups = {"energy": slice(0, self.n_cells), "working_fluid": slice(self.i_mv, self.i_w)}
+        if self.spec.cap_water.mode == "charge":
+            groups["cap_water"] = slice(self.i_w, self.i_w + 1)
+        if self.spec.second_bulb.mode == "lumped":
+            groups["second_bulb_energy"] = slice(self.i_tb, self.i_tb + 1)
+        return groups
 
     def capacity(self, y: np.ndarray):
         n = self.n_cells
@@ -284,7 +300,7 @@ class DeviceProblem:
         per_tv = 0.5 * p_v / t_v  # d(p_v / sqrt(T_v)) / dT_v at fixed m_v, in units of dp_v / sqrt(T_v)
         dts_dtv = lat * x["dj_dp"] * per_tv / (kap - g1)
         dJ_dtv = x["dj_dp"] * per_tv + x["dj_dt"] * dts_dtv
-        weight = area / area.sum()
+        weight = area / max(area.sum(), 1e-300)
         add(np.repeat(P, len(P)), np.tile(P, len(P)), np.outer(-dt * area * kap * dts_dtv, weight).ravel())
         add(self.i_mv, P, dt * float(np.sum(area * dJ_dtv)) * weight)
         add(np.repeat(self.i_c, len(P)), np.tile(P, len(P)), np.outer(-dt * area * dJ_dtv, weight).ravel())
