@@ -76,6 +76,36 @@ class Evaluation:
         return float(np.abs(self.boundary_heat).sum() + abs(self.source_heat))
 
 
+@dataclass(frozen=True)
+class AffineOperator:
+    """A problem whose heat rate is F(T) = A T + f0 with fixed A and f0 (see affine_operator).
+
+    Attributes
+    ----------
+    A : (n, n) CSR, W/K, dF/dT
+    f0 : (n,) W
+    inflow : (n,) W/K, column sums of A: the heat in is inflow . T + inflow0
+    inflow0 : float, W
+    capacity : (n,) J/K, dm/dT
+    evaluation : Evaluation at ``reference``
+    reference : (n,) K
+    """
+
+    A: sp.csr_matrix
+    f0: np.ndarray
+    inflow: np.ndarray
+    inflow0: float
+    capacity: np.ndarray
+    evaluation: Evaluation
+    reference: np.ndarray
+
+    def gross(self, T: np.ndarray) -> float:
+        """Scale of the gross boundary exchange at T (W), for the balance check."""
+        ev = self.evaluation
+        return (float(np.abs(ev.boundary_heat).sum()) + float(np.abs(ev.boundary_jacobian * (T - self.reference)).sum())
+                + abs(ev.source_heat))
+
+
 class ConductionProblem:
     """Transient conduction on a mesh with materials, boundary conditions and sources.
 
@@ -122,7 +152,11 @@ class ConductionProblem:
         self._constant_k = all(not m.context_dependent and m.conductivity.is_constant for m in self.materials)
         self._constant_c = all(not m.context_dependent and m.heat_capacity.is_constant for m in self.materials)
         self._cells = [np.flatnonzero(mesh.cell_material == i) for i in range(len(self.materials))]
+        self._boundary_cells = np.unique(mesh.boundary_cell)
         self._surface_guess: np.ndarray | None = None
+        self._correction_cache = None
+        self._capacity_cache = None
+        self._affine = None
         self._k_constant = None
         if self._constant_k:
             self._k_constant = self._per_cell(np.full(self.n, REFERENCE_TEMPERATURE), "conductivity_at", None)
@@ -159,8 +193,21 @@ class ConductionProblem:
 
     @property
     def exact_jacobian(self) -> bool:
-        """True when one Newton iteration solves a step exactly (linear, no deferred terms)."""
-        return self.linear and not self.correct
+        """True when one Newton iteration solves a step exactly: an affine problem whose
+        non-orthogonal correction, if any, is folded into the Jacobian."""
+        return self.linear and (not self.correct or self._implicit_correction is not None)
+
+    @property
+    def _implicit_correction(self):
+        """(C, column sums of C) when the correction can be written C T + c0 once and for all."""
+        if not (self.correct and self.linear and not self.boundary.coefficients_vary):
+            return None
+        if self._correction_cache is None:
+            from fvsolver.correction import correction_operator
+
+            C, _ = correction_operator(self, 0.0)
+            self._correction_cache = (C.tocsr(), np.asarray(C.sum(axis=0)).ravel())
+        return self._correction_cache
 
     @property
     def constant_jacobian(self) -> bool:
@@ -171,6 +218,11 @@ class ConductionProblem:
     def capacity(self, T: np.ndarray, context=None) -> tuple[np.ndarray, np.ndarray]:
         """Stored energy m = V rho e(T) (J, from 273.15 K) and dm/dT = V rho c(T) (J/K)."""
         v = self.mesh.cell_volumes
+        if self._constant_c:  # rho c fixed: m = (V rho c) (T - T_ref), no per-material gather
+            if self._capacity_cache is None:
+                self._capacity_cache = v * self._per_cell(T, "volumetric_heat_capacity", context)
+            dm = self._capacity_cache
+            return dm * (T - REFERENCE_TEMPERATURE), dm
         return (v * self._per_cell(T, "volumetric_energy", context),
                 v * self._per_cell(T, "volumetric_heat_capacity", context))
 
@@ -268,7 +320,44 @@ class ConductionProblem:
         diag = alpha0 * dm - dt * ev.boundary_jacobian
         kern.fill_jacobian(data, st.diag_pos, st.owner_pos, st.neighbour_pos, self.mesh.owner,
                            self.mesh.neighbour, diag, ev.conductance, dt)
-        return sp.csr_matrix((data, st.pattern.indices, st.pattern.indptr), shape=st.pattern.shape)
+        J = sp.csr_matrix((data, st.pattern.indices, st.pattern.indptr), shape=st.pattern.shape)
+        implicit = self._implicit_correction
+        if implicit is not None:
+            J = (J - dt * implicit[0]).tocsr()
+        return J
+
+    def affine_operator(self):
+        """F(T) = A T + f0 with everything fixed in time, or None when the problem is not so.
+
+        Lets the stepper take a linear step as a residual update and one solve, without
+        re-evaluating boundary conditions it already knows.
+        """
+        if self._affine is not None:
+            return self._affine or None
+        values = [getattr(t, n, None) for c in self.boundary.conditions for t in c.terms
+                  for n in ("temperature", "flux", "h", "ambient_temperature")]
+        timeless = not any(callable(v) for v in values) and not any(callable(s.power_density) for s in self.sources)
+        if not (self.exact_jacobian and timeless):
+            self._affine = False
+            return None
+        t_ref = np.full(self.n, REFERENCE_TEMPERATURE + 20.0)
+        ev = self.evaluate(t_ref, 0.0)
+        _, dm = self.capacity(t_ref)
+        A = self.jacobian(0.0, -1.0, dm, ev)  # alpha0 = 0, dt = -1: the matrix is dF/dT
+        f0 = ev.rate - A @ t_ref
+        self._affine = AffineOperator(A, f0, np.asarray(A.sum(axis=0)).ravel(), float(f0.sum()), dm, ev, t_ref)
+        return self._affine
+
+    def inflow_change(self, ev: Evaluation, delta: np.ndarray) -> tuple[float, float]:
+        """Exact change of the heat in (W) of an affine problem for a change ``delta`` of T, and a
+        bound on the change of its gross exchange."""
+        cells = self._boundary_cells
+        d = delta[cells]
+        change = float((ev.boundary_jacobian[cells] * d).sum())
+        implicit = self._implicit_correction
+        if implicit is not None:
+            change += float((implicit[1] * delta).sum())
+        return change, float(np.abs(ev.boundary_jacobian[cells] * d).sum())
 
     def balance_groups(self) -> dict[str, slice]:
         """Which entries of the state make up each conserved total."""

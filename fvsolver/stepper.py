@@ -142,9 +142,18 @@ class TimeStepper:
         self._f0: np.ndarray | None = None
         self._landing: float | None = None
         self._gross: dict[str, float] = {}
-        self.last_evaluation = None
+        self._last_evaluation = None
+        affine = getattr(problem, "affine_operator", None)
+        self._affine = affine() if affine is not None else None
 
     # -- public contract -------------------------------------------------------------------
+    @property
+    def last_evaluation(self):
+        """The problem's evaluation at the current state (computed when first asked for)."""
+        if self._last_evaluation is None and self.counters.steps > 0:
+            self._last_evaluation = self.problem.evaluate(self.y, self.t)
+        return self._last_evaluation
+
     def step(self) -> bool:
         """Take one accepted step (retrying rejected ones).  Returns False once not running."""
         if self.status != "running":
@@ -297,6 +306,9 @@ class TimeStepper:
     def _try_step(self, dt: float):
         p, opt, h = self.problem, self.options, self._history
         order, a0, a1, a2 = self._coefficients(dt)
+        op = self._affine
+        if op is not None:
+            return self._affine_step(op, dt, order, a0, a1, a2)
         t_new = self.t + dt
         hist = a1 * h.m[0] + (a2 * h.m[1] if a2 else 0.0)
         y_pred, est_factor = self._predict(dt, order) if opt.adaptive else (h.y[0], 0.0)
@@ -358,12 +370,38 @@ class TimeStepper:
             err = float(np.max(est / (opt.tolerance * self._scale + opt.relative_tolerance * np.abs(y))))
         return y, m_new, err, ev, order, w_new, a0
 
+    def _affine_step(self, op, dt, order, a0, a1, a2):
+        """A step of F(T) = A T + f0: one residual update and one solve, nothing re-evaluated."""
+        opt, h = self.options, self._history
+        y0 = h.y[0]
+        residual = a0 * h.m[0] + a1 * h.m[0] - dt * (op.A @ y0 + op.f0)
+        if a2:
+            residual += a2 * h.m[1]
+        lu = self._lu(a0, dt, op.capacity, op.evaluation, True)
+        delta = solve(lu, -residual)
+        self.counters.newton_iterations += 1
+        y = y0 + delta
+        m_new = h.m[0] + op.capacity * delta
+        self._gross = {g: op.gross(y) for g in self._groups}
+        inflow = float(op.inflow @ y) + op.inflow0
+        w_new = {}
+        for g, sl in self._groups.items():
+            w_new[g] = (dt * inflow + a2 * self._inflow[g]) / a0
+            stored = float((op.capacity * delta).sum())
+            scale = max(abs(stored), dt * self._gross[g], 1e-13 * float(np.abs(m_new).sum()), 1e-300)
+            self.balance_error[g] = abs(stored - w_new[g]) / scale
+        err = 0.0
+        if opt.adaptive:
+            y_pred, est_factor = self._predict(dt, order)
+            err = float(np.max(est_factor * np.abs(y - y_pred) / (opt.tolerance * self._scale
+                                                                   + opt.relative_tolerance * np.abs(y))))
+        return y, m_new, err, None, order, w_new, a0
+
     def _affine_inflow(self, ev, delta):
-        """Heat in at the new state of an affine problem: Q + sum_b dQ_b/dT_P delta_P."""
-        q = ev.heat_in + float(np.dot(ev.boundary_jacobian, delta))
-        gross = ev.gross_heat + float(np.abs(ev.boundary_jacobian * delta).sum())
-        self._gross = {g: gross for g in self._groups}
-        return {g: q for g in self._groups}
+        """Heat in at the new state of an affine problem, from the problem's exact change."""
+        change, gross = self.problem.inflow_change(ev, delta)
+        self._gross = {g: ev.gross_heat + gross for g in self._groups}
+        return {g: ev.heat_in + change for g in self._groups}
 
     def _accept(self, dt, y_new, m_new, ev, order, w_new):
         h = self._history
@@ -381,7 +419,7 @@ class TimeStepper:
         for g, w in w_new.items():
             self.cumulative_inflow[g] = self.cumulative_inflow.get(g, 0.0) + w
         self.counters.steps += 1
-        self.last_evaluation = ev
+        self._last_evaluation = ev
 
 
 def solve_steady(problem, y_guess, time: float = 0.0, tolerance: float = 1e-10, max_iterations: int = 300):

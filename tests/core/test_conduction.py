@@ -20,7 +20,10 @@ def test_two_point_matrix_is_symmetric(system):
     T = np.linspace(290, 310, problem.n)
     _, dm = problem.capacity(T)
     J = problem.jacobian(1.0, 3.0, dm, problem.evaluate(T, 0.0))
-    assert abs(J - J.T).max() <= 1e-14 * abs(J).max()
+    implicit = problem._implicit_correction  # the folded-in non-orthogonal part is not symmetric
+    two_point = J + 3.0 * implicit[0] if implicit is not None else J
+    assert abs(two_point - two_point.T).max() <= 1e-14 * abs(two_point).max()
+    assert implicit is None or abs(implicit[0]).max() > 0  # the warped mesh does need it
 
 
 @pytest.mark.parametrize("system", ["planar", "axisymmetric"])
