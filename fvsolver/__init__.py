@@ -2,3 +2,20 @@
 from __future__ import annotations
 
 __version__ = "0.1.0"
+
+
+def load_case(path):
+    """Read, validate and freeze a TOML case file (see :func:`fvsolver.case.load_case`)."""
+    from fvsolver.case import load_case as _load
+
+    return _load(path)
+
+
+def run(case, out=None, **options):
+    """Run a case (a path or a loaded case); returns a Result with ``summary``, ``history``
+    (arrays), ``temperature`` (the final field) and ``state`` (see :func:`fvsolver.pipeline.run`)."""
+    from fvsolver.pipeline import run as _run
+
+    if not hasattr(case, "sha256"):
+        case = load_case(case)
+    return _run(case, out, **options)

@@ -8,11 +8,12 @@ from pathlib import Path
 
 from fvsolver import __version__
 from fvsolver.errors import CaseError, FvsolverError, MeshError, SolverError
-from fvsolver.run import EXIT_CASE, EXIT_INTERNAL, EXIT_INTERRUPTED, EXIT_OK, EXIT_SOLVER
+from fvsolver.pipeline import EXIT_CASE, EXIT_INTERNAL, EXIT_INTERRUPTED, EXIT_OK, EXIT_SOLVER
 
 EPILOG = """\
 examples:
-  fvsolver run cases/glass_bulb_cooling.toml --out results/cooling
+  fvsolver run cases/demo.toml --out results/demo
+  fvsolver run cases/demo.toml --resume results/demo     (continue a killed run)
   fvsolver check cases/glass_bulb_cooling.toml
   fvsolver mesh cases/glass_bulb_cooling.toml --out meshes/head.vtu
   fvsolver verify --out verification
@@ -40,6 +41,8 @@ def _parser() -> argparse.ArgumentParser:
         if name == "run":
             s.add_argument("--out", type=Path, default=None, help="output folder (default: results/<case name>)")
             s.add_argument("--overwrite", action="store_true", help="write into a non-empty output folder")
+            s.add_argument("--resume", type=Path, default=None, metavar="DIR",
+                           help="continue the killed or interrupted run whose outputs are in DIR")
         if name == "mesh":
             s.add_argument("--out", type=Path, required=True, help="the VTU file to write")
         if name == "verify":
@@ -56,11 +59,17 @@ def _say(args, text: str) -> None:
 
 def _run(args) -> int:
     from fvsolver.case import load_case
-    from fvsolver.run import run
+    from fvsolver.pipeline import run
 
     case = load_case(args.case)
-    out = args.out or Path("results") / args.case.stem
-    result = run(case, out, overwrite=args.overwrite, argv=sys.argv)
+    out = args.resume or args.out or Path("results") / args.case.stem
+    bar = ProgressBar(case["time"]["end"]) if sys.stderr.isatty() and not args.quiet else None
+    try:
+        result = run(case, out, overwrite=args.overwrite, argv=sys.argv, resume=args.resume is not None,
+                     progress=bar)
+    finally:
+        if bar is not None:
+            bar.close()
     s = result.summary
     _say(args, f"{s['title'] or args.case.stem}: {s['status']} at t = {s['end_time_s']:.6g} s "
                f"({s['n_steps']} steps, {s['n_cells']} cells)")
@@ -78,6 +87,32 @@ def _run(args) -> int:
                f"energy balance error {s['energy_balance_relative_error']:.2e}" + (f"; mass {mass}" if mass else ""))
     _say(args, f"  outputs in {out}")
     return EXIT_INTERRUPTED if s["status"] == "interrupted" else EXIT_OK
+
+
+class ProgressBar:
+    """One line on the terminal: simulated time, step, pressure difference against the target."""
+
+    def __init__(self, end_time: float, width: int = 28):
+        import time
+
+        self.end, self.width, self.clock, self.last = end_time, width, time.monotonic, 0.0
+
+    def __call__(self, stepper, monitor) -> None:
+        now = self.clock()
+        if now - self.last < 0.2:
+            return
+        self.last = now
+        done = min(1.0, stepper.t / self.end)
+        bar = "#" * int(done * self.width) + "." * (self.width - int(done * self.width))
+        text = f"\r[{bar}] t = {stepper.t:9.3f} s  dt = {stepper.last_dt:8.3g} s"
+        if monitor is not None:
+            p = monitor.problem.pressures(stepper.y)["pressure_drop_pa"]
+            text += f"  dp = {p:8.1f} / {monitor.target(stepper.y):.1f} Pa"
+        sys.stderr.write(text)
+        sys.stderr.flush()
+
+    def close(self) -> None:
+        sys.stderr.write("\n")
 
 
 def _check(args) -> int:

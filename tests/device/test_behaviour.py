@@ -4,7 +4,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from fvsolver.run import run
+from fvsolver.pipeline import run
 from tests.device.helpers import device_case
 
 

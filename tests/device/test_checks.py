@@ -9,7 +9,7 @@ from scipy.optimize import brentq
 from fvsolver.device.surfaces import CondensingWall, saturated_water_vapour_density
 from fvsolver.properties import water
 from fvsolver.properties.fluids import UNIVERSAL_GAS_CONSTANT, get_fluid
-from fvsolver.run import run
+from fvsolver.pipeline import run
 from tests.device.helpers import device_case
 
 

@@ -119,7 +119,7 @@ def prepare_output(out: Path, overwrite: bool) -> Path:
 
 
 def run(case: Case, out: str | Path | None = None, overwrite: bool = False, progress=None,
-        argv: list[str] | None = None) -> Result:
+        argv: list[str] | None = None, resume: bool = False, checkpoint_every: float = 30.0) -> Result:
     """Run ``case``; write outputs into ``out`` when given.
 
     Parameters
@@ -128,8 +128,23 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
     out : folder for the outputs (None: nothing is written)
     overwrite : allow a non-empty output folder
     progress : callable(stepper, monitor) called after every accepted step, or None
+    resume : continue the run checkpointed in ``out`` (the case must be unchanged)
+    checkpoint_every : wall-clock seconds between checkpoints (0: after every step)
     """
-    folder = prepare_output(out, overwrite) if out is not None else None
+    import time as wall
+
+    from fvsolver import checkpoint
+
+    if resume:
+        if out is None:
+            raise CaseError("--resume: needs the output folder of the run to continue")
+        folder = Path(out)
+        meta, arrays = checkpoint.load(folder, case.sha256)
+        stale = folder / "summary.json"
+        if stale.exists():
+            stale.unlink()
+    else:
+        folder = prepare_output(out, overwrite) if out is not None else None
     setup = build(case)
     stepper = TimeStepper(setup.problem, setup.initial, 0.0, setup.end_time, setup.options,
                           stop_times=setup.field_times)
@@ -149,11 +164,22 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
                 "command_line": argv or sys.argv, "packages": _versions()}
         atomic_write_text(folder / "run_info.json", json.dumps(info, indent=2))
     fields = FieldWriter(folder, setup) if folder is not None else None
-    if fields is not None:
-        fields.write(0.0, setup.initial, setup.problem.evaluate(setup.initial, 0.0))
-    rows = [_history_row(setup, stepper, monitor)]
-    worst: dict[str, float] = {}
+    if resume:
+        checkpoint.restore(stepper, monitor, meta, arrays)
+        rows, worst = meta["rows"], meta["worst"]
+        fields.entries = [tuple(e) for e in meta["field_entries"]]
+    else:
+        if fields is not None:
+            fields.write(0.0, setup.initial, setup.problem.evaluate(setup.initial, 0.0))
+        rows = [_history_row(setup, stepper, monitor)]
+        worst: dict[str, float] = {}
     status, reason = "complete", None
+    last_checkpoint = wall.monotonic()
+
+    def save_checkpoint():
+        if folder is not None:
+            checkpoint.save(folder, stepper, monitor, rows, fields.entries, case.sha256, worst)
+
     try:
         while stepper.step():
             for g, err in stepper.balance_error.items():
@@ -166,19 +192,24 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
             if fields is not None and np.any(np.isclose(stepper.t, setup.field_times, rtol=0, atol=1e-12)):
                 fields.write(stepper.t, stepper.y, stepper.last_evaluation)
                 _write_csv(folder / "history.csv", rows)
+            if folder is not None and wall.monotonic() - last_checkpoint >= checkpoint_every:
+                save_checkpoint()
+                last_checkpoint = wall.monotonic()
             if progress is not None:
                 progress(stepper, monitor)
             if reached and setup.device.target.stop_when_reached:
                 break
         if stepper.status == "failed":
             status, reason = "failed", stepper.message
+            save_checkpoint()
         else:
             for g, err in stepper.balance_error.items():
                 worst[g] = max(worst.get(g, 0.0), float(err))
             if fields is not None and (not fields.entries or fields.entries[-1][0] != stepper.t):
                 fields.write(stepper.t, stepper.y, stepper.last_evaluation)
     except KeyboardInterrupt:
-        status, reason = "interrupted", f"stopped by the user at t = {stepper.t:.6g} s"
+        status, reason = "interrupted", f"stopped by the user at t = {stepper.t:.6g} s (continue with --resume)"
+        save_checkpoint()
     summary = _summary(case, setup, stepper, monitor, worst, status, reason)
     history = {k: np.array([r.get(k, np.nan) for r in rows]) for k in rows[-1]}
     if folder is not None:
