@@ -85,6 +85,11 @@ def _run(args) -> int:
     mass = ", ".join(f"{k} {v:.1e}" for k, v in s["mass_balance_relative_error"].items())
     _say(args, f"  temperature {s['min_temperature_k']:.3f} .. {s['max_temperature_k']:.3f} K; "
                f"energy balance error {s['energy_balance_relative_error']:.2e}" + (f"; mass {mass}" if mass else ""))
+    if args.verbose:
+        for key in ("n_rejected_steps", "n_newton_iterations", "end_time_s"):
+            _say(args, f"  {key}: {s[key]}")
+        if s.get("room"):
+            _say(args, "  room: " + ", ".join(f"{k} {v:.4g}" for k, v in s["room"].items()))
     _say(args, f"  outputs in {out}")
     return EXIT_INTERRUPTED if s["status"] == "interrupted" else EXIT_OK
 

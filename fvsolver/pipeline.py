@@ -202,6 +202,8 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
         if stepper.status == "failed":
             status, reason = "failed", stepper.message
             save_checkpoint()
+            if fields is not None:  # the last good (accepted) state, for a look at what went wrong
+                fields.write(stepper.t, stepper.y, stepper.last_evaluation)
         else:
             for g, err in stepper.balance_error.items():
                 worst[g] = max(worst.get(g, 0.0), float(err))

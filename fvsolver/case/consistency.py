@@ -26,16 +26,20 @@ def shape_tags(geometry: dict) -> tuple[tuple, tuple]:
     }[shape]
 
 
-def resolve_mesh_file(name: str, folder: Path) -> Path:
-    """A mesh path: absolute as given, else in the case's folder, else in the project's meshes/."""
+def resolve_mesh_file(name: str, folder: Path) -> Path | None:
+    """A mesh path: absolute as given, else inside the case's folder, else inside the project's
+    meshes/; a relative path that climbs out of both (``../``) gives None."""
     p = Path(name)
     if p.is_absolute():
         return p
-    for base in (folder, Path(__file__).resolve().parents[2] / "meshes"):
+    inside = []
+    for base in (folder.resolve(), Path(__file__).resolve().parents[2] / "meshes"):
         candidate = (base / p).resolve()
-        if candidate.is_file():
-            return candidate
-    return (folder / p).resolve()
+        if candidate.is_relative_to(base):
+            inside.append(candidate)
+            if candidate.is_file():
+                return candidate
+    return inside[0] if inside else None
 
 
 def check_consistency(data: dict, v) -> None:
@@ -81,6 +85,10 @@ def check_consistency(data: dict, v) -> None:
         from fvsolver.vtk_io import read_mesh
 
         path = resolve_mesh_file(geo["file"], Path(data.get("_folder", ".")))
+        if path is None:
+            v.error("geometry.file", f"got {geo['file']!r}, expected a path inside the case's folder or meshes/ "
+                    "(or an absolute path); relative paths may not climb out with '..'")
+            return
         if not path.is_file():
             v.error("geometry.file", f"got {geo['file']!r}, expected a VTU file in the case's folder or meshes/ "
                     f"(looked for {path}); write one with `fvsolver mesh`")
