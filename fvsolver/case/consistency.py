@@ -44,6 +44,7 @@ def resolve_mesh_file(name: str, folder: Path) -> Path | None:
 
 def check_consistency(data: dict, v) -> None:
     """Append every consistency problem of ``data`` to the validator ``v``."""
+    start = len(v.problems)  # gate the dependent checks on this stage's own problems
     geo = data["geometry"]
     shape = geo["shape"]
     needed = SHAPES[shape]
@@ -54,7 +55,7 @@ def check_consistency(data: dict, v) -> None:
     for name in geo:
         if name not in needed and name not in ("shape", "coordinate_system", "material"):
             v.error(f"geometry.{name}", f"not used by shape {shape!r} (it takes {', '.join(needed)}); remove it")
-    if v.problems:
+    if len(v.problems) > start:
         return
     if shape in ("device_head", "two_layer_shell"):
         if not geo["cap_from_deg"] < geo["cap_to_deg"]:
@@ -78,7 +79,7 @@ def check_consistency(data: dict, v) -> None:
     if shape in ("spherical_shell", "hollow_cylinder") and not geo["inner_radius"] < geo["outer_radius"]:
         v.error("geometry.outer_radius", f"got {geo['outer_radius']!r}, expected more than inner_radius "
                 f"({geo['inner_radius']!r})")
-    if v.problems:
+    if len(v.problems) > start:
         return
     if shape == "mesh_file":
         from fvsolver.errors import MeshError
@@ -103,7 +104,7 @@ def check_consistency(data: dict, v) -> None:
     else:
         patches, materials = shape_tags(geo)
     device = "fluid" in data
-    if device and not _check_device(data, v, patches):
+    if device and not _check_device(data, v, patches, len(v.problems)):
         return
     controlled = device_patches(data, patches) if device else ()
     if not device and "temperature" not in data["initial"]:
@@ -166,7 +167,7 @@ def device_patches(data: dict, patches) -> tuple:
     return tuple(p for p in patches if p in fixed or p in data["fluid"]["condensing_patches"])
 
 
-def _check_device(data: dict, v, patches) -> bool:
+def _check_device(data: dict, v, patches, start: int) -> bool:
     """Device-model checks; fills the device tables' defaults.  False when later checks are moot."""
     from fvsolver.case.schema import CAP as CAP_KEY, CAP_WATER, SECOND_BULB
     from fvsolver.errors import PropertyError
@@ -187,7 +188,7 @@ def _check_device(data: dict, v, patches) -> bool:
     for name in ("room", "target"):
         if name not in data:
             v.error(name, f"missing: a case with a [fluid] needs a [{name}] table", line_path="fluid")
-    if v.problems:
+    if len(v.problems) > start:
         return False
     try:
         fluid = get_fluid(data["fluid"]["name"])
@@ -228,4 +229,4 @@ def _check_device(data: dict, v, patches) -> bool:
         if hs["patch"] not in outer or hs["patch"] not in patches:
             v.error(f"heat_sources[{i}].patch", f"got {hs['patch']!r}, expected an outer patch of the head "
                     f"({', '.join(p for p in outer if p in patches)})")
-    return not v.problems
+    return len(v.problems) == start

@@ -69,12 +69,15 @@ def _is_number(v: Any) -> bool:
 
 def _describe(key: Key) -> str:
     if key.kind == "number":
-        parts = ["a number"]
+        unit = f" {key.unit}" if key.unit else ""
+        if key.minimum is not None and key.maximum is not None:
+            bracket = "(" if key.exclusive_minimum else "["
+            return f"a number in {bracket}{key.minimum:g}, {key.maximum:g}]{unit}"
         if key.minimum is not None:
-            parts.append(f"{'>' if key.exclusive_minimum else '>='} {key.minimum:g}")
+            return f"a number {'>' if key.exclusive_minimum else '>='} {key.minimum:g}" + (f" in{unit}" if unit else "")
         if key.maximum is not None:
-            parts.append(f"<= {key.maximum:g}")
-        return " ".join(parts) + (f" in {key.unit}" if key.unit else "")
+            return f"a number <= {key.maximum:g}" + (f" in{unit}" if unit else "")
+        return "a number" + (f" in{unit}" if unit else "")
     if key.kind == "integer":
         rng = f" >= {key.minimum:g}" if key.minimum is not None else ""
         return "a whole number" + rng
@@ -260,6 +263,12 @@ def validate_data(raw: dict, filename: str = "<case>", text: str = "",
     data["_folder"] = str((folder or Path.cwd()).resolve())
     if not v.problems:
         check_consistency(data, v)
+    else:
+        # report the consistency problems of the parts that are well formed too: all at once
+        try:
+            check_consistency(copy.deepcopy(data), v)
+        except (KeyError, TypeError, ValueError, AttributeError, IndexError):
+            pass
     return data, v.problems
 
 
