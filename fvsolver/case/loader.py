@@ -50,6 +50,9 @@ def line_map(text: str) -> dict[str, int]:
             else:
                 current = name
             lines.setdefault(current, number)
+            parts = name.split(".")
+            for k in range(1, len(parts)):  # a header also stands for the tables it opens
+                lines.setdefault(".".join(parts[:k]), number)
             continue
         m = _ASSIGN.match(line)
         if m:
@@ -267,7 +270,7 @@ def validate_data(raw: dict, filename: str = "<case>", text: str = "",
         # report the consistency problems of the parts that are well formed too: all at once
         try:
             check_consistency(copy.deepcopy(data), v)
-        except (KeyError, TypeError, ValueError, AttributeError, IndexError):
+        except (KeyError, TypeError, ValueError, AttributeError, IndexError, ArithmeticError):
             pass
     return data, v.problems
 
@@ -291,7 +294,8 @@ def load_case(path: str | Path) -> Case:
         raw = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         m = re.search(r"line (\d+)", str(exc))
-        raise CaseErrors([f"{path}:{m.group(1) if m else 1}: TOML syntax: {exc}; fix the syntax"]) from exc
+        line = m.group(1) if m else (str(max(1, len(text.splitlines()))) if "end of document" in str(exc) else "1")
+        raise CaseErrors([f"{path}:{line}: TOML syntax: {exc}; fix the syntax"]) from exc
     data, problems = validate_data(raw, str(path), text, path.parent)
     if problems:
         raise CaseErrors(problems)
