@@ -85,6 +85,7 @@ def restore(stepper: TimeStepper, monitor, meta: dict, arrays: dict) -> None:
     stepper.counters = Counters(**meta["counters"])
     stepper._f0 = arrays.get("f0")
     stepper._last_evaluation = None
+    stepper._affine_rate = None
     _conduction(stepper.problem)._surface_guess = arrays.get("surface_guess")
     if monitor is not None and meta["monitor"] is not None:
         for k in MONITOR_FIELDS:

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 from collections.abc import Callable
 from dataclasses import dataclass
+from functools import cached_property
 
 import numpy as np
 import scipy.sparse as sp
@@ -98,6 +99,11 @@ class AffineOperator:
     capacity: np.ndarray
     evaluation: Evaluation
     reference: np.ndarray
+
+    @cached_property
+    def capacity_total(self) -> float:
+        """Heat capacity of the whole body, J/K."""
+        return float(self.capacity.sum())
 
     def gross(self, T: np.ndarray) -> float:
         """Scale of the gross boundary exchange at T (W), for the balance check."""

@@ -145,6 +145,8 @@ class TimeStepper:
         self._last_evaluation = None
         affine = getattr(problem, "affine_operator", None)
         self._affine = affine() if affine is not None else None
+        self._affine_rate = None  # F at the current state, for affine problems
+        self._pending_rate = None
 
     # -- public contract -------------------------------------------------------------------
     @property
@@ -217,6 +219,7 @@ class TimeStepper:
         self._dts = []
         self._inflow = {g: 0.0 for g in self._groups}
         self._f0 = None
+        self._affine_rate = None
         self.dt = float(dt if dt is not None else self.options.initial_step)
 
     def dense(self, t: float) -> np.ndarray:
@@ -374,21 +377,32 @@ class TimeStepper:
         """A step of F(T) = A T + f0: one residual update and one solve, nothing re-evaluated."""
         opt, h = self.options, self._history
         y0 = h.y[0]
-        residual = a0 * h.m[0] + a1 * h.m[0] - dt * (op.A @ y0 + op.f0)
+        # F(y_n): carried from the last step's own equation, dt F(y_n) = sum a_i m_(n-i), when known
+        rate = self._affine_rate if self._affine_rate is not None else op.A @ y0 + op.f0
+        residual = (a0 + a1) * h.m[0]
+        residual -= dt * rate
         if a2:
             residual += a2 * h.m[1]
         lu = self._lu(a0, dt, op.capacity, op.evaluation, True)
         delta = solve(lu, -residual)
         self.counters.newton_iterations += 1
         y = y0 + delta
-        m_new = h.m[0] + op.capacity * delta
-        self._gross = {g: op.gross(y) for g in self._groups}
+        change = op.capacity * delta
+        m_new = h.m[0] + change
+        new_rate = a0 * m_new + a1 * h.m[0]
+        if a2:
+            new_rate += a2 * h.m[1]
+        new_rate /= dt
+        self._pending_rate = new_rate
+        gross = op.gross(y)
         inflow = float(op.inflow @ y) + op.inflow0
+        stored = float(change.sum())
         w_new = {}
-        for g, sl in self._groups.items():
+        for g in self._groups:
+            self._gross[g] = gross
             w_new[g] = (dt * inflow + a2 * self._inflow[g]) / a0
-            stored = float((op.capacity * delta).sum())
-            scale = max(abs(stored), dt * self._gross[g], 1e-13 * float(np.abs(m_new).sum()), 1e-300)
+            # the round-off floor: 1e-13 of the content of the body 100 K from the reference
+            scale = max(abs(stored), dt * gross, 1e-11 * op.capacity_total, 1e-300)
             self.balance_error[g] = abs(stored - w_new[g]) / scale
         err = 0.0
         if opt.adaptive:
@@ -420,6 +434,8 @@ class TimeStepper:
             self.cumulative_inflow[g] = self.cumulative_inflow.get(g, 0.0) + w
         self.counters.steps += 1
         self._last_evaluation = ev
+        self._affine_rate = self._pending_rate
+        self._pending_rate = None
 
 
 def solve_steady(problem, y_guess, time: float = 0.0, tolerance: float = 1e-10, max_iterations: int = 300):
