@@ -107,9 +107,21 @@ class AffineOperator:
 
     def gross(self, T: np.ndarray) -> float:
         """Scale of the gross boundary exchange at T (W), for the balance check."""
+        cells = self.boundary_cells
+        return self.gross_constant + float(np.add.reduce(np.abs(self.boundary_slope * (T[cells] - self.reference[cells]))))
+
+    @cached_property
+    def gross_constant(self) -> float:
         ev = self.evaluation
-        return (float(np.abs(ev.boundary_heat).sum()) + float(np.abs(ev.boundary_jacobian * (T - self.reference)).sum())
-                + abs(ev.source_heat))
+        return float(np.abs(ev.boundary_heat).sum()) + abs(ev.source_heat)
+
+    @cached_property
+    def boundary_cells(self) -> np.ndarray:
+        return np.flatnonzero(self.evaluation.boundary_jacobian)
+
+    @cached_property
+    def boundary_slope(self) -> np.ndarray:
+        return self.evaluation.boundary_jacobian[self.boundary_cells]
 
 
 class ConductionProblem:

@@ -395,7 +395,7 @@ class TimeStepper:
         new_rate /= dt
         self._pending_rate = new_rate
         gross = op.gross(y)
-        inflow = float(op.inflow @ y) + op.inflow0
+        inflow = float(np.add.reduce(op.inflow * y)) + op.inflow0  # not a BLAS dot: no thread stalls
         stored = float(change.sum())
         w_new = {}
         for g in self._groups:
