@@ -43,6 +43,8 @@ def _parser() -> argparse.ArgumentParser:
             s.add_argument("--overwrite", action="store_true", help="write into a non-empty output folder")
             s.add_argument("--resume", type=Path, default=None, metavar="DIR",
                            help="continue the killed or interrupted run whose outputs are in DIR")
+            s.add_argument("--checkpoint-every", type=float, default=30.0, metavar="SECONDS",
+                           help="wall-clock seconds between checkpoints (default 30; 0: every step)")
         if name == "mesh":
             s.add_argument("--out", type=Path, required=True, help="the VTU file to write")
         if name == "verify":
@@ -66,7 +68,7 @@ def _run(args) -> int:
     bar = ProgressBar(case["time"]["end"]) if sys.stderr.isatty() and not args.quiet else None
     try:
         result = run(case, out, overwrite=args.overwrite, argv=sys.argv, resume=args.resume is not None,
-                     progress=bar)
+                     progress=bar, checkpoint_every=args.checkpoint_every)
     finally:
         if bar is not None:
             bar.close()

@@ -82,6 +82,8 @@ class FieldWriter:
         mesh, setup = self.setup.mesh, self.setup
         T = y[: mesh.n_cells]
         problem = setup.problem
+        if ev is None:  # e.g. a run that failed before its first accepted step
+            ev = problem.evaluate(y, t)
         conduction_ev = getattr(ev, "conduction", ev)
         cell = {"temperature": T, "heat_flux": heat_flux_vectors(setup.conduction, T, conduction_ev)}
         areas = mesh.boundary_areas
@@ -202,7 +204,8 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
         if stepper.status == "failed":
             status, reason = "failed", stepper.message
             save_checkpoint()
-            if fields is not None:  # the last good (accepted) state, for a look at what went wrong
+            if fields is not None and (not fields.entries or fields.entries[-1][0] < stepper.t):
+                # the last good (accepted) state, for a look at what went wrong
                 fields.write(stepper.t, stepper.y, stepper.last_evaluation)
         else:
             for g, err in stepper.balance_error.items():

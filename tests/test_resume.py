@@ -47,3 +47,18 @@ def test_resume_refuses_a_changed_case(tmp_path):
     case_file.write_text(case_file.read_text().replace("relative_humidity = 0.45", "relative_humidity = 0.5"))
     with pytest.raises(CaseError, match="the case changed since the checkpoint"):
         run(fvsolver.load_case(case_file), out, resume=True)
+
+
+def test_a_step_that_cannot_converge_stops_with_a_reason_and_the_last_good_fields(tmp_path):
+    """A tolerance no step can meet above min_step: exit 3, status failed, plain words, fields kept."""
+    from fvsolver.cli import main
+
+    text = (ROOT / "cases" / "demo.toml").read_text().replace("tolerance = 0.02", "tolerance = 1e-9").replace(
+        "initial_step = 0.05", "initial_step = 0.05\nmin_step = 0.01")
+    case = tmp_path / "strict.toml"
+    case.write_text(text)
+    out = tmp_path / "o"
+    assert main(["run", str(case), "--out", str(out), "-q"]) == 3
+    summary = json.loads((out / "summary.json").read_text())
+    assert summary["status"] == "failed" and "min_step" in summary["reason"]
+    assert (out / "fields.pvd").is_file() and len(list(out.glob("fields_*.vtu"))) >= 1
