@@ -182,8 +182,11 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
         if folder is not None:
             checkpoint.save(folder, stepper, monitor, rows, fields.entries, case.sha256, worst)
 
+    # a run killed after its target but before its summary has nothing left to step
+    finished = (monitor is not None and monitor.time_to_target is not None
+                and setup.device.target.stop_when_reached)
     try:
-        while stepper.step():
+        while not finished and stepper.step():
             for g, err in stepper.balance_error.items():
                 worst[g] = max(worst.get(g, 0.0), float(err))
             reached = monitor.after_step(stepper) if monitor is not None else False
