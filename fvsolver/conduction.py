@@ -23,8 +23,8 @@ from fvsolver.errors import CaseError
 from fvsolver.kernels import conduction as kern
 from fvsolver.materials import REFERENCE_TEMPERATURE, Material
 from fvsolver.mesh.core import Mesh
+from fvsolver.surface_balance import SURFACE_ITERATIONS, solve_surface as _solve_surface, term_sum as _term_sum
 
-SURFACE_ITERATIONS = 50
 
 
 @dataclass(frozen=True)
@@ -380,70 +380,6 @@ class ConductionProblem:
     def balance_groups(self) -> dict[str, slice]:
         """Which entries of the state make up each conserved total."""
         return {"energy": slice(0, self.n)}
-
-
-def _solve_surface(terms, kappa, t_foot, guess, time, centres, faces, context):
-    """Surface temperatures solving kappa (T_s - T_foot) = q(T_s), face by face (vectorised).
-
-    F(T_s) = kappa (T_s - T_foot) - q(T_s) increases with T_s for every physical term, so a
-    Newton iteration safeguarded by bisection inside a bracket always converges, even where
-    q(T_s) turns sharply (a face switching from condensing to dry).
-    """
-    ts = t_foot.copy() if guess is None else guess.copy()
-    lo, hi = ts - 0.5, ts + 0.5
-
-    def residual(x):
-        q, dq = _term_sum(terms, x, time, centres, faces, context)
-        return kappa * (x - t_foot) - q, kappa - dq
-
-    f_lo, _ = residual(lo)
-    f_hi, _ = residual(hi)
-    for _ in range(60):  # widen the bracket until F(lo) <= 0 <= F(hi)
-        bad_lo, bad_hi = f_lo > 0.0, f_hi < 0.0
-        if not (bad_lo.any() or bad_hi.any()):
-            break
-        width = hi - lo
-        lo = np.where(bad_lo, lo - width, lo)
-        hi = np.where(bad_hi, hi + width, hi)
-        f_lo = np.where(bad_lo, residual(lo)[0], f_lo)
-        f_hi = np.where(bad_hi, residual(hi)[0], f_hi)
-    active = np.arange(ts.size)
-    for _ in range(SURFACE_ITERATIONS * 2):
-        # only the faces not yet converged are iterated (a face switching from condensing to
-        # dry converges more slowly than the rest)
-        x, l, h, fl, fh = ts[active], lo[active], hi[active], f_lo[active], f_hi[active]
-        sub = faces[active] if faces is not None else None
-        q, dq = _term_sum(terms, x, time, centres[active], sub, context)
-        f = kappa[active] * (x - t_foot[active]) - q
-        df = kappa[active] - dq
-        below = f <= 0.0
-        l, fl = np.where(below, x, l), np.where(below, f, fl)
-        h, fh = np.where(~below, x, h), np.where(~below, f, fh)
-        newton = x - f / df
-        # outside the bracket (across a kink), fall back on the secant through the bracket
-        secant = (l * fh - h * fl) / np.where(fh - fl > 0.0, fh - fl, 1.0)
-        secant = np.where((secant > l) & (secant < h), secant, 0.5 * (l + h))
-        new = np.where((newton > l) & (newton < h), newton, secant)
-        done = (np.abs(new - x) <= 2e-15 * np.abs(x)) | (h - l <= 4e-15 * np.abs(x))
-        ts[active], lo[active], hi[active], f_lo[active], f_hi[active] = new, l, h, fl, fh
-        active = active[~done]
-        if active.size == 0:
-            break
-    return ts
-
-
-def _term_sum(terms, ts, time, centres, faces, context):
-    """Sum of the flux terms' q and dq/dT_s on one patch's faces."""
-    g0 = np.zeros_like(ts)
-    g1 = np.zeros_like(ts)
-    for term in terms:
-        if getattr(term, "coupled", False):
-            a, b = term.heat_flux(ts, time, centres, faces, context)
-        else:
-            a, b = term.heat_flux(ts, time, centres)
-        g0 += a
-        g1 += b
-    return g0, g1
 
 
 def heat_flux_vectors(problem: ConductionProblem, T: np.ndarray, ev: Evaluation) -> np.ndarray:

@@ -8,7 +8,7 @@ import numpy as np
 from scipy.optimize import brentq
 
 from fvsolver.materials import REFERENCE_TEMPERATURE
-from fvsolver.properties import moist_air, porous
+from fvsolver.properties import moist_air
 
 
 class DeviceMonitor:
@@ -157,12 +157,6 @@ class DeviceMonitor:
             row["condensation_rate_kg_s"] = 0.0
         row["condensate_kg"] = float(np.dot(p.inner_area, y[p.i_c]))
         return row
-
-
-def wet_fraction(problem, y) -> float:
-    cw = problem.spec.cap_water
-    s = problem.saturation(y[problem.i_w])
-    return float(porous.drying_rate_factor(np.clip(s, 0.0, 1.0), cw.critical_saturation, cw.residual_saturation))
 
 
 def room_summary(room) -> dict:
