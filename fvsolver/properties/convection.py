@@ -33,6 +33,7 @@ from numpy.typing import ArrayLike, NDArray
 from fvsolver.errors import PropertyError
 from fvsolver.properties import moist_air
 from fvsolver.properties.fluids import PropertyRangeWarning
+from fvsolver.properties.checks import checked
 
 STANDARD_GRAVITY = 9.80665
 """Standard acceleration of gravity [m/s2] (CGPM 1901)."""
@@ -51,18 +52,9 @@ _WHITAKER_PR_MAX = 380.0
 _WHITAKER_RE_MAX = 7.6e4
 
 
-def _checked(value: ArrayLike, name: str, low: float, high: float, hint: str,
-             low_open: bool = False) -> NDArray[np.float64]:
-    """Return ``value`` as a float array, raising if any entry is outside its interval."""
-    arr = np.asarray(value, dtype=float)
-    below = arr <= low if low_open else arr < low
-    bad = ~np.isfinite(arr) | below | (arr > high)
-    if np.any(bad):
-        offending = np.ravel(arr[bad])
-        interval = f"({low}, {high}]" if low_open else f"[{low}, {high}]"
-        raise PropertyError(f"{name} = {offending[0]:.10g} received ({offending.size} offending value(s)); "
-                            f"expected finite values in {interval}; {hint}")
-    return arr
+
+def _checked(value, name, low, high, hint, low_open=False):
+    return checked(value, name, low, high, hint, "", low_open)
 
 
 def nusselt_sphere_natural(Ra: ArrayLike, Pr: ArrayLike) -> NDArray[np.float64]:

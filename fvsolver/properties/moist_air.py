@@ -31,6 +31,7 @@ from numpy.typing import ArrayLike, NDArray
 
 from fvsolver.errors import PropertyError
 from fvsolver.properties import water
+from fvsolver.properties.checks import checked, describe as _describe
 
 UNIVERSAL_GAS_CONSTANT = 8.314462618
 """Molar gas constant [J/(mol K)] (CODATA 2018, exact)."""
@@ -65,28 +66,9 @@ _KAPPA_COEFF = 2.64638e-3
 _KAPPA_S = 245.4
 
 
-def _describe(values: NDArray[np.float64]) -> str:
-    flat = np.ravel(values).astype(float)
-    if flat.size == 1:
-        return f"{flat[0]:.10g}"
-    finite = flat[np.isfinite(flat)]
-    text = f"{flat.size} offending values (first {flat[0]:.10g}"
-    if finite.size:
-        text += f", finite ones from {finite.min():.10g} to {finite.max():.10g}"
-    return text + ")"
 
-
-def _checked(value: ArrayLike, name: str, low: float, high: float, unit: str, hint: str,
-             low_open: bool = False) -> NDArray[np.float64]:
-    """Return ``value`` as a float array, raising if any entry is outside its interval."""
-    arr = np.asarray(value, dtype=float)
-    below = arr <= low if low_open else arr < low
-    bad = ~np.isfinite(arr) | below | (arr > high)
-    if np.any(bad):
-        interval = f"({low}, {high}]" if low_open else f"[{low}, {high}]"
-        raise PropertyError(f"{name} = {_describe(arr[bad])} {unit} received; expected finite values in "
-                            f"{interval} {unit}; {hint}")
-    return arr
+def _checked(value, name, low, high, unit, hint, low_open=False):
+    return checked(value, name, low, high, hint, unit, low_open)
 
 
 def _pressure(p: ArrayLike, name: str = "p") -> NDArray[np.float64]:

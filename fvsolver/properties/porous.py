@@ -26,23 +26,15 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from fvsolver.errors import PropertyError
+from fvsolver.properties.checks import checked
 
 CONDUCTIVITY_MODELS = ("parallel", "series", "maxwell_eucken", "emt")
 """Accepted values of ``model`` in :func:`effective_conductivity`."""
 
 
-def _checked(value: ArrayLike, name: str, low: float, high: float, hint: str,
-             low_open: bool = False) -> NDArray[np.float64]:
-    """Return ``value`` as a float array, raising if any entry is outside its interval."""
-    arr = np.asarray(value, dtype=float)
-    below = arr <= low if low_open else arr < low
-    bad = ~np.isfinite(arr) | below | (arr > high)
-    if np.any(bad):
-        offending = np.ravel(arr[bad])
-        interval = f"({low}, {high}]" if low_open else f"[{low}, {high}]"
-        raise PropertyError(f"{name} = {offending[0]:.10g} received ({offending.size} offending value(s)); "
-                            f"expected finite values in {interval}; {hint}")
-    return arr
+
+def _checked(value, name, low, high, hint, low_open=False):
+    return checked(value, name, low, high, hint, "", low_open)
 
 
 def _phase_fractions(porosity: ArrayLike, saturation: ArrayLike) -> tuple[NDArray[np.float64], ...]:

@@ -25,6 +25,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from fvsolver.errors import PropertyError
+from fvsolver.properties.checks import checked
 
 MOLAR_MASS = 0.01801528
 """Molar mass of water [kg/mol]."""
@@ -76,28 +77,9 @@ _KELL_DEN = 16.879850e-3
 _CP_EQ100 = (276370.0, -2090.1, 8.125, -0.014116, 9.3701e-6)
 
 
-def _describe(values: NDArray[np.float64]) -> str:
-    """Summarise offending values for an error message."""
-    flat = np.ravel(values).astype(float)
-    if flat.size == 1:
-        return f"{flat[0]:.10g}"
-    finite = flat[np.isfinite(flat)]
-    text = f"{flat.size} offending values (first {flat[0]:.10g}"
-    if finite.size:
-        text += f", finite ones from {finite.min():.10g} to {finite.max():.10g}"
-    return text + ")"
 
-
-def _checked(value: ArrayLike, name: str, low: float, high: float, unit: str, hint: str) -> NDArray[np.float64]:
-    """Return ``value`` as a float array, raising if any entry is outside [low, high]."""
-    arr = np.asarray(value, dtype=float)
-    bad = ~np.isfinite(arr) | (arr < low) | (arr > high)
-    if np.any(bad):
-        raise PropertyError(
-            f"{name} = {_describe(arr[bad])} {unit} received; expected finite values in "
-            f"[{low}, {high}] {unit}; {hint}"
-        )
-    return arr
+def _checked(value, name, low, high, unit, hint, low_open=False):
+    return checked(value, name, low, high, hint, unit, low_open)
 
 
 def _out(arr: NDArray[np.float64]) -> NDArray[np.float64]:
