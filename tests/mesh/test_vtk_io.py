@@ -14,15 +14,7 @@ from fvsolver.errors import MeshError
 from fvsolver.mesh import builders as B
 from fvsolver.mesh import head as H
 
-HEAD = dict(
-    bulb_inner_radius=0.01,
-    glass_thickness=0.6e-3,
-    cap_thickness=1.0e-3,
-    cap_polar_range=(0.2, 2.0),
-    neck_inner_radius=1.5e-3,
-    neck_outer_radius=2.5e-3,
-    neck_length=0.02,
-)
+from tests.mesh.test_builders import HEAD  # one set of device-head test dimensions
 
 
 @pytest.fixture(scope="module")
