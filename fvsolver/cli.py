@@ -88,7 +88,7 @@ def _run(args) -> int:
     _say(args, f"  temperature {s['min_temperature_k']:.3f} .. {s['max_temperature_k']:.3f} K; "
                f"energy balance error {s['energy_balance_relative_error']:.2e}" + (f"; mass {mass}" if mass else ""))
     if args.verbose:
-        for key in ("n_rejected_steps", "n_newton_iterations", "end_time_s"):
+        for key in ("n_rejected_steps", "n_newton_failures", "n_newton_iterations", "end_time_s"):
             _say(args, f"  {key}: {s[key]}")
         if s.get("room"):
             _say(args, "  room: " + ", ".join(f"{k} {v:.4g}" for k, v in s["room"].items()))

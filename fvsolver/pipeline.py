@@ -239,7 +239,8 @@ def _summary(case, setup, stepper, monitor, worst, status, reason) -> dict:
         "energy_balance_relative_error": worst.get("energy", 0.0),
         "mass_balance_relative_error": {g: e for g, e in worst.items() if g != "energy"},
         "n_cells": setup.mesh.n_cells, "n_steps": stepper.counters.steps,
-        "n_rejected_steps": stepper.counters.rejected, "n_newton_iterations": stepper.counters.newton_iterations,
+        "n_rejected_steps": stepper.counters.rejected, "n_newton_failures": stepper.counters.newton_failures,
+        "n_newton_iterations": stepper.counters.newton_iterations,
         "min_temperature_k": float(T.min()), "max_temperature_k": float(T.max()),
         "warnings": [],
     }

@@ -4,7 +4,7 @@ from __future__ import annotations
 import numpy as np
 
 from fvsolver.errors import SolverError
-from fvsolver.linear import factorise, solve
+from fvsolver.linear import Factoriser, solve
 
 
 def solve_steady(problem, y_guess, time: float = 0.0, tolerance: float = 1e-10, max_iterations: int = 300):
@@ -18,6 +18,7 @@ def solve_steady(problem, y_guess, time: float = 0.0, tolerance: float = 1e-10, 
     """
     y = np.array(y_guess, dtype=float)
     lu = None
+    factorise = Factoriser()
     for it in range(1, max_iterations + 1):
         ev = problem.evaluate(y, time)
         if lu is None or not problem.linear:

@@ -21,7 +21,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from fvsolver.errors import CaseError, FvsolverError, SolverError
-from fvsolver.linear import factorise, solve
+from fvsolver.linear import Factoriser, solve
 
 SCHEMES = ("backward_euler", "bdf2")
 
@@ -94,7 +94,8 @@ class TimeStepper:
     Parameters
     ----------
     problem : object with ``n``, ``capacity(y)``, ``evaluate(y, t)``, ``jacobian(a0, dt, dm, ev)``,
-        ``balance_groups()`` and the flags ``exact_jacobian``, ``constant_jacobian``.
+        ``balance_groups()`` and the flags ``exact_jacobian``, ``constant_jacobian``. The
+        Jacobian may be a sparse matrix or a :class:`fvsolver.linear.LowRankUpdate`.
     y0 : (n,) initial state
     t0, t_end : float, s
     options : StepperOptions
@@ -139,6 +140,7 @@ class TimeStepper:
         self._dts: list[float] = []           # newest first
         self._inflow: dict[str, float] = {g: 0.0 for g in self._groups}
         self._lu_cache: dict = {}
+        self._factorise = Factoriser()  # orders the Jacobian's pattern once per run
         self._f0: np.ndarray | None = None
         self._landing: float | None = None
         self._gross: dict[str, float] = {}
@@ -172,6 +174,8 @@ class TimeStepper:
                 reason = str(exc)
             else:
                 reason = "Newton's method did not converge"
+                if result is None:
+                    self.counters.newton_failures += 1
             if result is None:
                 self.dt = dt / 4.0
                 if self.dt < opt.min_step:
@@ -298,7 +302,7 @@ class TimeStepper:
         key = (alpha0, dt)
         if key_ok and key in self._lu_cache:
             return self._lu_cache[key]
-        lu = factorise(self.problem.jacobian(alpha0, dt, dm, ev))
+        lu = self._factorise(self.problem.jacobian(alpha0, dt, dm, ev))
         self.counters.factorisations += 1
         if key_ok:
             if len(self._lu_cache) > 4:
@@ -319,6 +323,7 @@ class TimeStepper:
         # (a wall face turning dry) that is safer than the extrapolated predictor
         y = h.y[0].copy()
         lu = None
+        norms = []
         prev_norm = math.inf
         converged = False
         for it in range(opt.max_newton_iterations):
@@ -343,6 +348,9 @@ class TimeStepper:
                 break
             if it >= 1 and norm > 2.0 * prev_before and norm > 1e3 * opt.newton_tolerance:
                 return None  # diverging: a shorter step will do better
+            norms.append(norm)
+            if it >= 4 and norm > 0.5 * norms[-4] and norm > 1e3 * opt.newton_tolerance:
+                return None  # not even halving over three iterations (cycling): a shorter step
             # converged; or stalled at the round-off floor of the evaluation just above the tolerance
             if norm <= opt.newton_tolerance or (norm <= 1e3 * opt.newton_tolerance and norm > 0.5 * prev_before):
                 converged = True

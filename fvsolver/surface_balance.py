@@ -19,21 +19,25 @@ def solve_surface(terms, kappa, t_foot, guess, time, centres, faces, context):
     ts = t_foot.copy() if guess is None else guess.copy()
     lo, hi = ts - 0.5, ts + 0.5
 
-    def residual(x):
-        q, dq = term_sum(terms, x, time, centres, faces, context)
-        return kappa * (x - t_foot) - q, kappa - dq
+    def residual(idx, x):
+        """F at ``x`` on the faces ``idx`` (indices into this patch's faces)."""
+        sub = faces[idx] if faces is not None else None
+        q, _ = term_sum(terms, x, time, centres[idx], sub, context)
+        return kappa[idx] * (x - t_foot[idx]) - q
 
-    f_lo, _ = residual(lo)
-    f_hi, _ = residual(hi)
-    for _ in range(60):  # widen the bracket until F(lo) <= 0 <= F(hi)
-        bad_lo, bad_hi = f_lo > 0.0, f_hi < 0.0
-        if not (bad_lo.any() or bad_hi.any()):
+    every = np.arange(ts.size)
+    f_lo, f_hi = residual(every, lo), residual(every, hi)
+    for _ in range(60):  # widen the bracket until F(lo) <= 0 <= F(hi), on the faces that need it
+        bad_lo, bad_hi = np.flatnonzero(f_lo > 0.0), np.flatnonzero(f_hi < 0.0)
+        if not (bad_lo.size or bad_hi.size):
             break
         width = hi - lo
-        lo = np.where(bad_lo, lo - width, lo)
-        hi = np.where(bad_hi, hi + width, hi)
-        f_lo = np.where(bad_lo, residual(lo)[0], f_lo)
-        f_hi = np.where(bad_hi, residual(hi)[0], f_hi)
+        if bad_lo.size:
+            lo[bad_lo] -= width[bad_lo]
+            f_lo[bad_lo] = residual(bad_lo, lo[bad_lo])
+        if bad_hi.size:
+            hi[bad_hi] += width[bad_hi]
+            f_hi[bad_hi] = residual(bad_hi, hi[bad_hi])
     active = np.arange(ts.size)
     for _ in range(SURFACE_ITERATIONS * 2):
         # only the faces not yet converged are iterated (a face switching from condensing to
@@ -50,7 +54,8 @@ def solve_surface(terms, kappa, t_foot, guess, time, centres, faces, context):
         # outside the bracket (across a kink), fall back on the secant through the bracket
         secant = (l * fh - h * fl) / np.where(fh - fl > 0.0, fh - fl, 1.0)
         secant = np.where((secant > l) & (secant < h), secant, 0.5 * (l + h))
-        new = np.where((newton > l) & (newton < h), newton, secant)
+        # the closed bracket: an end that an earlier iterate put on the root is a valid target
+        new = np.where((newton >= l) & (newton <= h), newton, secant)
         done = (np.abs(new - x) <= 2e-15 * np.abs(x)) | (h - l <= 4e-15 * np.abs(x))
         ts[active], lo[active], hi[active], f_lo[active], f_hi[active] = new, l, h, fl, fh
         active = active[~done]

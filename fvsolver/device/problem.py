@@ -22,6 +22,7 @@ from fvsolver.boundary import PatchCondition
 from fvsolver.conduction import ConductionProblem, Evaluation
 from fvsolver.device.spec import DeviceSpec
 from fvsolver.device.surfaces import CondensingWall, EvaporativeCap, RoomSurface
+from fvsolver.linear import LowRankUpdate
 from fvsolver.properties import convection, moist_air, porous
 from fvsolver.properties.fluids import UNIVERSAL_GAS_CONSTANT
 
@@ -260,7 +261,7 @@ class DeviceProblem:
                                 {"dj_dt": dj_dt, "dj_dp": dj_dp, "dj_dc": dj_dc, "dme_dt": dme_dt,
                                  "dsensible": dsensible, "T": T})
 
-    def jacobian(self, alpha0: float, dt: float, dm: np.ndarray, ev: DeviceEvaluation) -> sp.csr_matrix:
+    def jacobian(self, alpha0: float, dt: float, dm: np.ndarray, ev: DeviceEvaluation) -> LowRankUpdate:
         """J = alpha0 dm/dy - dt dF/dy; the weak dependences (transfer coefficients and the cap's
         conductivity on the state, the deferred non-orthogonal correction) are left out."""
         n, mesh, x = self.n_cells, self.mesh, ev.extras
@@ -300,10 +301,15 @@ class DeviceProblem:
         per_tv = 0.5 * p_v / t_v  # d(p_v / sqrt(T_v)) / dT_v at fixed m_v, in units of dp_v / sqrt(T_v)
         dts_dtv = lat * x["dj_dp"] * per_tv / (kap - g1)
         dJ_dtv = x["dj_dp"] * per_tv + x["dj_dt"] * dts_dtv
+        # it is kept as the update u w^T (w: the wall cells' area weights), which linear.factorise
+        # borders instead of forming the dense block
         weight = area / max(area.sum(), 1e-300)
-        add(np.repeat(P, len(P)), np.tile(P, len(P)), np.outer(-dt * area * kap * dts_dtv, weight).ravel())
-        add(self.i_mv, P, dt * float(np.sum(area * dJ_dtv)) * weight)
-        add(np.repeat(self.i_c, len(P)), np.tile(P, len(P)), np.outer(-dt * area * dJ_dtv, weight).ravel())
+        u = np.zeros(self.n)
+        np.add.at(u, P, -dt * area * kap * dts_dtv)
+        u[self.i_c] = -dt * area * dJ_dtv
+        u[self.i_mv] = dt * float(np.sum(area * dJ_dtv))
+        w = np.zeros(self.n)
+        np.add.at(w, P, weight)
         lumped = np.zeros(self.n - n)
         lumped[0] = alpha0 + dt * float(np.sum(area * dJ_dm))
         # the cap's water
@@ -341,4 +347,4 @@ class DeviceProblem:
         r, cl, v = np.concatenate(rows), np.concatenate(cols), np.concatenate(vals)
         extra = sp.coo_matrix((v, (r, cl)), shape=(self.n, self.n))
         full = sp.bmat([[jtt, None], [None, sp.csr_matrix((self.n - n, self.n - n))]], format="csr")
-        return (full + extra.tocsr()).tocsr()
+        return LowRankUpdate((full + extra.tocsr()).tocsr(), sp.csr_matrix(u[:, None]), sp.csr_matrix(w[:, None]))

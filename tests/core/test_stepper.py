@@ -1,8 +1,11 @@
 """Time-stepper verification: temporal orders, adaptive control, stop times, steady state."""
 from __future__ import annotations
 
+from types import SimpleNamespace
+
 import numpy as np
 import pytest
+import scipy.sparse as sp
 
 from fvsolver.boundary import FixedTemperature, PatchCondition
 from fvsolver.conduction import ConductionProblem, VolumetricSource
@@ -101,3 +104,42 @@ def test_fixed_step_reuses_one_factorisation_per_scheme_coefficient():
     stepper.run()
     assert stepper.counters.steps == 20
     assert stepper.counters.factorisations == 2  # the backward-Euler start and the BDF2 matrix
+
+
+class LaggedDecay:
+    """dy/dt = -lam y whose Jacobian leaves the decay out (backward Euler, J = 1), so Newton
+    contracts the error by dt lam per iteration."""
+
+    n = 1
+    exact_jacobian = False
+    constant_jacobian = False
+
+    def __init__(self, lam: float):
+        self.lam = lam
+
+    def balance_groups(self) -> dict:
+        return {}
+
+    def capacity(self, y):
+        return y.copy(), np.ones(1)
+
+    def evaluate(self, y, t):
+        return SimpleNamespace(rate=-self.lam * y, inflow=lambda g: 0.0, gross=lambda g: 0.0)
+
+    def jacobian(self, a0, dt, dm, ev):
+        return sp.csr_matrix(np.array([[a0 * dm[0]]]))
+
+
+def test_a_newton_iteration_that_stalls_is_cut_short_and_the_step_shortened():
+    """At dt = 0.5 the lagged Jacobian contracts by 0.9 per iteration: the stepper gives up
+    after a few iterations (not max_newton_iterations = 30), retries at dt / 4 (contraction
+    0.225) and still lands on the backward-Euler answer (1 + lam dt)^-steps."""
+    problem = LaggedDecay(1.8)
+    stepper = TimeStepper(problem, np.array([1.0]), 0.0, 1.0,
+                          StepperOptions(initial_step=0.5, scheme="backward_euler", adaptive=False))
+    stepper.step()
+    assert stepper.counters.newton_failures == 1
+    assert stepper.counters.newton_iterations <= 20  # 5 refused + ~14 at dt = 0.125
+    assert stepper.t == pytest.approx(0.125)
+    stepper.run()
+    assert stepper.y[0] == pytest.approx((1.0 + 1.8 * 0.125) ** -8, rel=1e-8)

@@ -1,0 +1,66 @@
+"""The device Jacobian against finite differences of the device's own step residual."""
+from __future__ import annotations
+
+import numpy as np
+
+from fvsolver.case.build import build
+from fvsolver.linear import LowRankUpdate, factorise, solve
+from fvsolver.stepper import TimeStepper
+from tests.device.helpers import device_case
+
+
+def state_after(seconds: float):
+    setup = build(device_case())
+    stepper = TimeStepper(setup.problem, setup.initial, 0.0, seconds, setup.options)
+    while stepper.step():
+        pass
+    return setup.problem, stepper.y.copy(), stepper.t
+
+
+def fd_jacobian(problem, y, t, alpha0, dt):
+    """d/dy of alpha0 m(y) - dt F(y) by forward differences, column by column."""
+    F0 = problem.evaluate(y, t).rate
+    m0, _ = problem.capacity(y)
+    J = np.empty((problem.n, problem.n))
+    for j in range(problem.n):
+        h = 1e-6 * max(abs(y[j]), 1.0) if j < problem.n_cells else 1e-6 * max(abs(y[j]), 1e-6)
+        yp = y.copy()
+        yp[j] += h
+        mp, _ = problem.capacity(yp)
+        J[:, j] = (alpha0 * (mp - m0) - dt * (problem.evaluate(yp, t).rate - F0)) / h
+    return J
+
+
+def test_device_jacobian_gives_newton_a_fast_contraction():
+    """Newton with the assembled Jacobian contracts the error by the spectral radius of
+    I - J^-1 J_fd per iteration. The Jacobian leaves out only weak dependences and the
+    deferred non-orthogonal correction, so the radius is a few hundredths (0.057 here, 0.05-0.08
+    measured on the demo head)."""
+    problem, y, t = state_after(10.0)
+    alpha0, dt = 1.0, 2.0
+    ev = problem.evaluate(y, t)
+    _, dm = problem.capacity(y)
+    J = problem.jacobian(alpha0, dt, dm, ev)
+    assert isinstance(J, LowRankUpdate)
+    exact = fd_jacobian(problem, y, t, alpha0, dt)
+    contraction = np.eye(problem.n) - np.linalg.solve(J.tocsr().toarray(), exact)
+    radius = max(abs(np.linalg.eigvals(contraction)))
+    assert radius < 0.15
+    # the lumped rows (vapour mass, inventories, cap water, second bulb) are exact to the
+    # differencing error
+    n = problem.n_cells
+    lumped = J.tocsr().toarray()[n:]
+    assert np.max(np.abs(lumped - exact[n:])) <= 1e-2 * np.max(np.abs(exact[n:]))
+    # the rank-one coupling: warming every wall cell by 1 K warms the vapour (the wall mean) and
+    # changes every face's condensation; without the update the lumped rows miss it by 4.6 %
+    # and the wall rows by 2.7 % (measured), with it by 1e-7 and 0.3 %
+    v = np.zeros(problem.n)
+    wall = problem.mesh.boundary_cell[problem.inner]
+    v[wall] = 1.0
+    got, want = J @ v, exact @ v
+    assert np.max(np.abs(got[n:] - want[n:])) <= 1e-4 * np.max(np.abs(want[n:]))
+    assert np.max(np.abs(got[wall] - want[wall])) <= 1e-2 * np.max(np.abs(want[wall]))
+    # and the bordered factor solves the formed product
+    b = np.random.default_rng(0).normal(size=problem.n)
+    x = solve(factorise(J), b)
+    assert np.allclose(J.tocsr() @ x, b, atol=1e-9 * np.max(np.abs(b)))
