@@ -1,0 +1,154 @@
+#!/usr/bin/env python
+"""Where a device run's time goes, and what the Jacobian's sparse form saves, side by side.
+
+For the demo head (cases/demo.toml) at a few mesh refinements (every cell count of its
+[mesh] table times a factor), this runs the case for ``--seconds`` of simulated time and then
+measures, in one process:
+
+* the Jacobian at that state factorised three ways, each timed as the median of
+  ``--repeats`` factorisations: ``formed`` (the rank-one vapour-temperature coupling formed
+  as its dense (wall faces)^2 block, ordered afresh: how fvsolver did it before
+  ``linear.LowRankUpdate``), ``bordered`` (the update bordered, ordered afresh) and ``kept``
+  (bordered, with the ordering a ``linear.Factoriser`` keeps for the run's pattern: what the
+  stepper does now). Ratios are printed against ``kept``, with each factor's fill;
+* the run itself: Newton iterations and factorisations per step, and the share of the
+  stepping time spent in evaluations, factorisations and solves.
+
+Run ``python bench/bench_device.py`` (about a minute on 2 cores), ``--factors 1,2,4,8``,
+``--seconds 10``, ``--repeats 5``.
+"""
+from __future__ import annotations
+
+import argparse
+import statistics
+import sys
+import time
+import tomllib
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parents[1]
+sys.path.insert(0, str(ROOT))  # run from a checkout
+
+import numpy as np  # noqa: E402
+import scipy.sparse.linalg as spla  # noqa: E402
+
+import fvsolver.linear as fv_linear  # noqa: E402
+from fvsolver.case.build import build  # noqa: E402
+from fvsolver.case.loader import Case, _freeze, validate_data  # noqa: E402
+from fvsolver.stepper import TimeStepper  # noqa: E402
+
+DEMO = ROOT / "cases" / "demo.toml"
+MESH_KEYS = ("glass_cells", "cap_cells", "polar_cells", "neck_cells")
+
+
+def demo_case(factor: int, seconds: float) -> Case:
+    data = tomllib.loads(DEMO.read_text())
+    for k in MESH_KEYS:
+        data["mesh"][k] *= factor
+    data["time"]["end"] = seconds
+    data["output"] = {"field_count": 0}
+    resolved, problems = validate_data(data)
+    assert not problems, problems
+    return Case(None, _freeze(resolved), "", "bench")
+
+
+class Timed:
+    """Wraps a callable and adds up its wall time."""
+
+    def __init__(self, fn):
+        self.fn, self.seconds, self.calls = fn, 0.0, 0
+
+    def __call__(self, *args, **kwargs):
+        t0 = time.perf_counter()
+        try:
+            return self.fn(*args, **kwargs)
+        finally:
+            self.seconds += time.perf_counter() - t0
+            self.calls += 1
+
+
+def median_ms(fn, repeats: int) -> tuple[float, object]:
+    times, out = [], None
+    for _ in range(repeats):
+        t0 = time.perf_counter()
+        out = fn()
+        times.append(time.perf_counter() - t0)
+    return 1e3 * statistics.median(times), out
+
+
+def bench(factor: int, seconds: float, repeats: int) -> dict:
+    setup = build(demo_case(factor, seconds))
+    problem = setup.problem
+    stepper = TimeStepper(problem, setup.initial, 0.0, seconds, setup.options)
+    evaluate = Timed(problem.evaluate)
+    problem.evaluate = evaluate
+    factorise = Timed(stepper._factorise)
+    stepper._factorise = factorise
+    t0 = time.perf_counter()
+    while stepper.step():
+        pass
+    stepping = time.perf_counter() - t0
+    assert stepper.status == "finished", stepper.message
+    del problem.evaluate  # back to the class's method
+    c = stepper.counters
+
+    ev = problem.evaluate(stepper.y, stepper.t)
+    _, dm = problem.capacity(stepper.y)
+    J = problem.jacobian(1.5, stepper.last_dt, dm, ev)
+    formed = J.tocsr().tocsc()
+    t_formed, lu_formed = median_ms(lambda: spla.splu(formed, **fv_linear.SPLU_OPTIONS), repeats)
+    t_bordered, f_bordered = median_ms(lambda: fv_linear.factorise(J), repeats)
+    keeper = fv_linear.Factoriser()
+    keeper(J)
+    t_kept, f_kept = median_ms(lambda: keeper(J), repeats)
+    b = np.random.default_rng(0).normal(size=problem.n)
+    x_formed = lu_formed.solve(b)
+    diff = float(np.max(np.abs(f_kept.solve(b) - x_formed)) / np.max(np.abs(x_formed)))
+    assert diff < 1e-8, diff
+    return dict(
+        cells=problem.n_cells, unknowns=problem.n, wall_faces=len(problem.inner),
+        steps=c.steps, newton=c.newton_iterations, factorisations=c.factorisations,
+        stepping=stepping, t_eval=evaluate.seconds, t_fact=factorise.seconds,
+        t_formed=t_formed, t_bordered=t_bordered, t_kept=t_kept,
+        fill_formed=int(lu_formed.L.nnz + lu_formed.U.nnz), fill_bordered=f_bordered.fill,
+        fill_kept=f_kept.fill, diff=diff,
+    )
+
+
+def main(argv=None) -> int:
+    ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
+    ap.add_argument("--factors", default="1,2,4,8", help="mesh refinement factors of the demo head")
+    ap.add_argument("--seconds", type=float, default=10.0, help="simulated time before the Jacobian is taken")
+    ap.add_argument("--repeats", type=int, default=5)
+    args = ap.parse_args(argv)
+    bench(1, 0.2, 1)  # warm-up: numba compiles its kernels on the first run
+    rows = []
+    for f in (int(x) for x in args.factors.split(",")):
+        r = bench(f, args.seconds, args.repeats)
+        rows.append(r)
+        print(f"factor {f}: {r['cells']} cells done", file=sys.stderr, flush=True)
+    print("Factorisation of the device Jacobian at t = %g s (median of %d, ms; fill = nnz(L) + nnz(U))"
+          % (args.seconds, args.repeats))
+    print()
+    print("| cells | wall faces | formed ms | bordered ms | kept ms | formed / kept | bordered / kept "
+          "| fill formed | fill kept | max rel. diff of solves |")
+    print("|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|")
+    for r in rows:
+        print(f"| {r['cells']} | {r['wall_faces']} | {r['t_formed']:.1f} | {r['t_bordered']:.1f} | "
+              f"{r['t_kept']:.1f} | {r['t_formed'] / r['t_kept']:.2f} | {r['t_bordered'] / r['t_kept']:.2f} | "
+              f"{r['fill_formed']:,} | {r['fill_kept']:,} | {r['diff']:.1e} |")
+    print()
+    print("The run to t = %g s (stepping time; shares of it)" % args.seconds)
+    print()
+    print("| cells | steps | Newton it/step | factorisations/step | stepping s | evaluations | factorisations | rest |")
+    print("|---:|---:|---:|---:|---:|---:|---:|---:|")
+    for r in rows:
+        s = r["stepping"]
+        print(f"| {r['cells']} | {r['steps']} | {r['newton'] / r['steps']:.1f} | "
+              f"{r['factorisations'] / r['steps']:.1f} | {s:.2f} | {r['t_eval'] / s:.0%} | "
+              f"{r['t_fact'] / s:.0%} | {1 - (r['t_eval'] + r['t_fact']) / s:.0%} |")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
