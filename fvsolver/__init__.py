@@ -19,3 +19,13 @@ def run(case, out=None, **options):
     if not hasattr(case, "sha256"):
         case = load_case(case)
     return _run(case, out, **options)
+
+
+def sweep(case, vary: dict, out=None, **options):
+    """Run a case (a path or a loaded case) over the grid of ``vary`` (dotted key path -> list of
+    values, the first key slowest); returns one dict per run (see :func:`fvsolver.sweeps.sweep`)."""
+    from fvsolver.sweeps import Vary, sweep as _sweep
+
+    if not hasattr(case, "sha256"):
+        case = load_case(case)
+    return _sweep(case, [Vary(k, tuple(v)) for k, v in vary.items()], out, **options)

@@ -1,4 +1,4 @@
-"""The command line: ``fvsolver run | check | mesh | verify``."""
+"""The command line: ``fvsolver run | sweep | check | mesh | verify``."""
 from __future__ import annotations
 
 import argparse
@@ -14,6 +14,8 @@ EPILOG = """\
 examples:
   fvsolver run cases/demo.toml --out results/demo
   fvsolver run cases/demo.toml --resume results/demo     (continue a killed run)
+  fvsolver sweep cases/demo.toml --vary room.relative_humidity=0.3:0.8:6 \
+                 --vary room.air_temperature=293.15,298.15 --out results/humidity
   fvsolver check cases/glass_bulb_cooling.toml
   fvsolver mesh cases/glass_bulb_cooling.toml --out meshes/head.vtu
   fvsolver verify --out verification
@@ -29,14 +31,16 @@ def _parser() -> argparse.ArgumentParser:
                                 formatter_class=argparse.RawDescriptionHelpFormatter)
     p.add_argument("--version", action="version", version=f"fvsolver {__version__}")
     sub = p.add_subparsers(dest="command", required=True)
-    for name, text in (("run", "run a case and write its outputs"), ("check", "validate a case file only"),
+    for name, text in (("run", "run a case and write its outputs"),
+                       ("sweep", "run a case over a grid of changed keys; one table row per run"),
+                       ("check", "validate a case file only"),
                        ("mesh", "write the case's mesh as VTU"), ("verify", "run the verification cases")):
         s = sub.add_parser(name, help=text, description=text, epilog=EPILOG,
                            formatter_class=argparse.RawDescriptionHelpFormatter)
         g = s.add_mutually_exclusive_group()
         g.add_argument("-q", "--quiet", action="store_true", help="print errors only")
         g.add_argument("-v", "--verbose", action="store_true", help="print more detail")
-        if name in ("run", "check", "mesh"):
+        if name in ("run", "sweep", "check", "mesh"):
             s.add_argument("case", type=Path, help="the TOML case file")
         if name == "run":
             s.add_argument("--out", type=Path, default=None, help="output folder (default: results/<case name>)")
@@ -45,6 +49,13 @@ def _parser() -> argparse.ArgumentParser:
                            help="continue the killed or interrupted run whose outputs are in DIR")
             s.add_argument("--checkpoint-every", type=float, default=30.0, metavar="SECONDS",
                            help="wall-clock seconds between checkpoints (default 30; 0: every step)")
+        if name == "sweep":
+            s.add_argument("--vary", action="append", default=[], metavar="KEY.PATH=VALUES", required=True,
+                           help="a key and its values: V1,V2,... (TOML values) or START:STOP:N; repeat "
+                                "for a grid (the first key varies slowest)")
+            s.add_argument("--out", type=Path, default=None, help="output folder (default: results/<case name>_sweep)")
+            s.add_argument("--overwrite", action="store_true", help="write into a non-empty output folder")
+            s.add_argument("--plots", action="store_true", help="also draw every run's own plots and report")
         if name == "mesh":
             s.add_argument("--out", type=Path, required=True, help="the VTU file to write")
         if name == "verify":
@@ -94,6 +105,32 @@ def _run(args) -> int:
             _say(args, "  room: " + ", ".join(f"{k} {v:.4g}" for k, v in s["room"].items()))
     _say(args, f"  outputs in {out}")
     return EXIT_INTERRUPTED if s["status"] == "interrupted" else EXIT_OK
+
+
+def _sweep(args) -> int:
+    from fvsolver.case import load_case
+    from fvsolver.sweeps import parse_vary, sweep
+
+    case = load_case(args.case)
+    varies = [parse_vary(text) for text in args.vary]
+    out = args.out or Path("results") / f"{args.case.stem}_sweep"
+
+    def progress(index, count, changes, row):
+        what = ", ".join(f"{k} = {v:g}" if isinstance(v, float) else f"{k} = {v}" for k, v in changes.items())
+        if row["status"] != "complete":
+            result = f"{row['status']}: {row['reason']}"
+        elif row["target_reached"] is None:
+            result = "complete"
+        elif row["target_reached"]:
+            result = f"target reached at t = {row['time_to_target_s']:.2f} s"
+        else:
+            result = f"target NOT reached: {row['stall_reason']}"
+        _say(args, f"  [{index + 1}/{count}] {what}: {result} ({row['wall_time_s']:.1f} s)")
+
+    rows = sweep(case, varies, out, overwrite=args.overwrite, plots=args.plots, progress=progress)
+    failed = sum(r["status"] == "failed" for r in rows)
+    _say(args, f"{len(rows)} runs, {failed} failed; table in {out / 'sweep.csv'}")
+    return EXIT_SOLVER if failed else EXIT_OK
 
 
 class ProgressBar:
@@ -154,7 +191,7 @@ def _verify(args) -> int:
 
 def main(argv: list[str] | None = None) -> int:
     args = _parser().parse_args(argv)
-    handler = {"run": _run, "check": _check, "mesh": _mesh, "verify": _verify}[args.command]
+    handler = {"run": _run, "sweep": _sweep, "check": _check, "mesh": _mesh, "verify": _verify}[args.command]
     try:
         return handler(args)
     except (CaseError, MeshError) as exc:

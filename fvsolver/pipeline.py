@@ -121,7 +121,8 @@ def prepare_output(out: Path, overwrite: bool) -> Path:
 
 
 def run(case: Case, out: str | Path | None = None, overwrite: bool = False, progress=None,
-        argv: list[str] | None = None, resume: bool = False, checkpoint_every: float = 30.0) -> Result:
+        argv: list[str] | None = None, resume: bool = False, checkpoint_every: float = 30.0,
+        plots: bool = True) -> Result:
     """Run ``case``; write outputs into ``out`` when given.
 
     Parameters
@@ -132,6 +133,7 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
     progress : callable(stepper, monitor) called after every accepted step, or None
     resume : continue the run checkpointed in ``out`` (the case must be unchanged)
     checkpoint_every : wall-clock seconds between checkpoints (0: after every step)
+    plots : draw the PNG plots and write report.md (a sweep leaves them out by default)
     """
     import time as wall
 
@@ -222,7 +224,8 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
     history = {k: np.array([r.get(k, np.nan) for r in rows]) for k in rows[-1]}
     if folder is not None:
         _write_csv(folder / "history.csv", rows)
-        _write_plots_and_report(folder, case, setup, summary, history, fields)
+        if plots:
+            _write_plots_and_report(folder, case, setup, summary, history, fields)
         atomic_write_text(folder / "summary.json", json.dumps(summary, indent=2))
     result = Result(summary, history, stepper.y[: setup.mesh.n_cells].copy(), stepper.y.copy(), setup)
     if status == "failed":

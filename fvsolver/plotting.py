@@ -459,3 +459,48 @@ def history_plot(
     if title:
         fig.suptitle(title, fontsize=11)
     _save(fig, path)
+
+
+def sweep_plot(rows: Sequence[Mapping], keys: Sequence[str], path: Path, title: str = "") -> None:
+    """Time to target against the first swept key, one line per combination of the others.
+
+    Runs that did not reach the target are drawn as open markers on the top edge of the panel
+    (labelled "not reached"), so a stalled climate stands out instead of vanishing.
+
+    Parameters
+    ----------
+    rows : the sweep's rows (``time_to_target_s`` in s or None, and one entry per key)
+    keys : the swept key paths, the first one on the horizontal axis (numeric values)
+    path : the PNG to write (atomically)
+    """
+    first, others = keys[0], list(keys[1:])
+    groups: dict[tuple, list[Mapping]] = {}
+    for r in rows:
+        groups.setdefault(tuple(r[k] for k in others), []).append(r)
+    reached = [r["time_to_target_s"] for r in rows if r["time_to_target_s"] is not None]
+    top = 1.08 * max(reached) if reached else 1.0
+    fig, ax = plt.subplots(figsize=(7.0, 4.2), layout="constrained")
+    ax.grid(True, lw=0.4, alpha=0.45)
+    for label, members in groups.items():
+        members = sorted(members, key=lambda r: r[first])
+        x = np.array([float(r[first]) for r in members])
+        y = np.array([np.nan if r["time_to_target_s"] is None else float(r["time_to_target_s"]) for r in members])
+        name = ", ".join(f"{k.split('.')[-1]} = {v:g}" if isinstance(v, int | float) else f"{k.split('.')[-1]} = {v}"
+                         for k, v in zip(others, label)) or None
+        (line,) = ax.plot(x, y, marker="s", ms=4.5, lw=1.3, label=name)
+        missed = np.isnan(y)
+        if missed.any():
+            ax.plot(x[missed], np.full(missed.sum(), top), ls="none", marker="s", ms=6, mfc="none",
+                    mec=line.get_color())
+    if len(reached) < len(rows):
+        ax.axhline(top, color="0.5", lw=0.6, ls=":")
+        ax.annotate("not reached", (0.01, top), xycoords=("axes fraction", "data"), va="bottom",
+                    fontsize=7.5, color="0.35")
+    ax.set_ylim(0.0, 1.12 * top)
+    ax.set_xlabel(first)
+    ax.set_ylabel("time to target (s)")
+    if title:
+        ax.set_title(title, fontsize=9.5)
+    if others:
+        ax.legend(fontsize=7.5, frameon=False)
+    _save(fig, path)

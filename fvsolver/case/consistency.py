@@ -201,6 +201,7 @@ def _check_device(data: dict, v, patches, start: int) -> bool:
     if not eq.t_min <= t_air <= eq.t_max:
         v.error("room.air_temperature", f"got {t_air!r} K, expected a temperature inside {fluid.name}'s "
                 f"saturation-pressure data range ({eq.t_min:g}-{eq.t_max:g} K)")
+    _check_wet_bulb(room, v)
     if room["convection"] == "given" and "heat_transfer_coefficient" not in room:
         v.error("room.heat_transfer_coefficient", "missing: convection = 'given' needs it", line_path="room")
     if room["convection"] == "forced" and room["air_speed"] <= 0.0:
@@ -230,3 +231,19 @@ def _check_device(data: dict, v, patches, start: int) -> bool:
             v.error(f"heat_sources[{i}].patch", f"got {hs['patch']!r}, expected an outer patch of the head "
                     f"({', '.join(p for p in outer if p in patches)})")
     return len(v.problems) == start
+
+
+def _check_wet_bulb(room: dict, v) -> None:
+    """The wet cap sits near the room's wet-bulb temperature; below freezing it would ice over,
+    which the model does not cover. Refused here, before a run starts."""
+    from fvsolver.errors import PropertyError
+    from fvsolver.properties import moist_air
+
+    t, rh, p = room["air_temperature"], room["relative_humidity"], room["pressure"]
+    try:
+        moist_air.wet_bulb_temperature(t, rh, p)
+    except PropertyError as exc:
+        if "below 273.15 K" not in str(exc):
+            return  # other range problems are reported by the checks of those keys
+        v.error("room.relative_humidity", f"got {rh!r} at air_temperature {t!r} K: the wet-bulb temperature "
+                "is below 0 C, so the wet cap would freeze (not modelled); use a warmer or more humid room")

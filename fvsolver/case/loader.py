@@ -301,3 +301,61 @@ def load_case(path: str | Path) -> Case:
         raise CaseErrors(problems)
     resolved = dumps({k: v for k, v in data.items() if not k.startswith("_")})
     return Case(path, _freeze(data), text, hashlib.sha256(resolved.encode()).hexdigest())
+
+
+def _set_path(data: dict, path: str, value: Any) -> None:
+    """data[a][b][...] = value for the dotted ``path`` ("room.relative_humidity",
+    "heat_sources.0.power"); missing tables are created, list entries are addressed by index."""
+    parts = path.split(".")
+    node: Any = data
+    for i, part in enumerate(parts[:-1]):
+        if isinstance(node, list):
+            if not part.isdigit() or int(part) >= len(node):
+                raise CaseErrors([f"{'.'.join(parts[:i])}: got index {part!r}, expected one of "
+                                  f"0..{len(node) - 1} (the list has {len(node)} entries)"])
+            node = node[int(part)]
+            continue
+        if not isinstance(node, dict):
+            raise CaseErrors([f"{'.'.join(parts[:i])}: is a value, not a table; cannot set {path}"])
+        node = node.setdefault(part, {})
+    last = parts[-1]
+    if isinstance(node, list):
+        if not last.isdigit() or int(last) >= len(node):
+            raise CaseErrors([f"{'.'.join(parts[:-1])}: got index {last!r}, expected one of 0..{len(node) - 1}"])
+        node[int(last)] = value
+    elif isinstance(node, dict):
+        node[last] = value
+    else:
+        raise CaseErrors([f"{'.'.join(parts[:-1])}: is a value, not a table; cannot set {path}"])
+
+
+def with_changes(case: Case, changes: dict[str, Any], label: str | None = None) -> Case:
+    """A copy of ``case`` with some keys set, validated afresh (defaults re-derived).
+
+    Parameters
+    ----------
+    changes : dotted key path -> value, e.g. ``{"room.relative_humidity": 0.8}``
+    label : names the variant in error messages (default: the changes themselves)
+
+    Raises
+    ------
+    CaseErrors
+        With every problem of the changed case, each prefixed by the variant's label.
+    """
+    from fvsolver.case.writer import dumps
+
+    if case.text:
+        raw = tomllib.loads(case.text)  # from the file as written: defaults are filled again
+    else:
+        raw = thaw(case.data)
+        raw.pop("_folder", None)
+    for path, value in changes.items():
+        _set_path(raw, path, value)
+    label = label or ", ".join(f"{k} = {v!r}" for k, v in changes.items())
+    name = str(case.path) if case.path else "<case>"
+    data, problems = validate_data(raw, name, case.text, case.folder)
+    if problems:
+        raise CaseErrors([f"[{label}] {p}" for p in problems])
+    resolved = dumps({k: v for k, v in data.items() if not k.startswith("_")})
+    # the text of the changed case, so that a further change starts from it too
+    return Case(case.path, _freeze(data), dumps(raw), hashlib.sha256(resolved.encode()).hexdigest())

@@ -172,15 +172,24 @@ def vapour_density(p_vapour: ArrayLike, T: ArrayLike) -> NDArray[np.float64]:
 
 
 def dew_point(p_vapour: ArrayLike) -> NDArray[np.float64]:
-    """Dew-point temperature [K] over liquid water, same shape as ``p_vapour``.
+    """Dew-point temperature [K], same shape as ``p_vapour``: over liquid water from 611.2127 Pa
+    (0 C), over ice below it (the frost point, as ASHRAE 2017 ch. 1 defines the dew point below
+    freezing). A dry room (20 % at 24 C, say) has its dew point there.
 
     Parameters
     ----------
     p_vapour : float or array_like
-        Vapour partial pressure [Pa], 611.2127 Pa (0 C) to 22.064 MPa; lower
-        values would give a frost point over ice, which is not covered.
+        Vapour partial pressure [Pa], from the frost point at 150 K to 22.064 MPa.
     """
-    return water.saturation_temperature(p_vapour)
+    pv = _checked(p_vapour, "p_vapour", 0.0, water.CRITICAL_PRESSURE, "Pa",
+                  "pass the vapour partial pressure in pascal", low_open=True)
+    over_ice = pv < water.P_SATURATION_MIN
+    out = np.empty_like(pv)
+    if np.any(~over_ice):
+        out[~over_ice] = water.saturation_temperature(pv[~over_ice])
+    if np.any(over_ice):
+        out[over_ice] = water.sublimation_temperature(pv[over_ice])
+    return out[()]
 
 
 # ASHRAE 2017 eq. (33) works in kJ/kg and degrees Celsius; these are its constants.

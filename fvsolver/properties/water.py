@@ -14,6 +14,9 @@ Sources
   tests check them against IAPWS-95).
 * Perry's Chemical Engineers' Handbook, 8th ed., Table 2-153 (DIPPR
   equation 100), liquid heat capacity of water.
+* IAPWS R14-08(2011), *Revised Release on the Pressure along the Melting and
+  Sublimation Curves of Ordinary Water Substance*, eq. (6): the sublimation
+  pressure over ice Ih, 50 K to the triple point (for frost points).
 
 All functions take floats or numpy arrays of any shape and return numpy
 values of the broadcast shape. Inputs outside the stated validity range raise
@@ -28,6 +31,16 @@ from fvsolver.errors import PropertyError
 from fvsolver.properties.checks import checked
 
 MOLAR_MASS = 0.01801528
+
+TRIPLE_POINT_TEMPERATURE = 273.16
+"""Triple point of water [K] (IAPWS R14-08)."""
+TRIPLE_POINT_PRESSURE = 611.657
+"""Triple-point pressure of water [Pa] (IAPWS R14-08)."""
+# IAPWS R14-08(2011) eq. (6): p_subl / p_t = exp(theta^-1 sum a_i theta^b_i), theta = T / T_t
+_SUBLIMATION_A = (-0.212144006e2, 0.273203819e2, -0.610598130e1)
+_SUBLIMATION_B = (0.333333333e-2, 0.120666667e1, 0.170333333e1)
+T_SUBLIMATION_MIN = 150.0
+"""Lowest temperature [K] the frost-point inversion is used down to (the release holds from 50 K)."""
 """Molar mass of water [kg/mol]."""
 
 CRITICAL_TEMPERATURE = 647.096
@@ -271,3 +284,47 @@ def liquid_heat_capacity(T: ArrayLike) -> NDArray[np.float64]:
     T = _liquid_temperature(T)
     molar_per_kmol = np.polynomial.polynomial.polyval(T, _CP_EQ100)
     return _out(molar_per_kmol * 1.0e-3 / MOLAR_MASS)
+
+
+def _sublimation_log(T):
+    """ln(p_subl / p_t) and its derivative in T, IAPWS R14-08 eq. (6)."""
+    theta = T / TRIPLE_POINT_TEMPERATURE
+    value = sum(a * theta ** (b - 1.0) for a, b in zip(_SUBLIMATION_A, _SUBLIMATION_B))
+    slope = sum(a * (b - 1.0) * theta ** (b - 2.0) for a, b in zip(_SUBLIMATION_A, _SUBLIMATION_B))
+    return value, slope / TRIPLE_POINT_TEMPERATURE
+
+
+def sublimation_pressure(T: ArrayLike) -> NDArray[np.float64]:
+    """Vapour pressure over ice Ih [Pa], IAPWS R14-08(2011) eq. (6), same shape as ``T``.
+
+    Parameters
+    ----------
+    T : float or array_like, K, within 150 K to the triple point 273.16 K
+    """
+    t = _checked(T, "T", T_SUBLIMATION_MIN, TRIPLE_POINT_TEMPERATURE, "K",
+                 "pass a temperature of ice in kelvin, at or below the triple point")
+    value, _ = _sublimation_log(t)
+    return _out(TRIPLE_POINT_PRESSURE * np.exp(value))
+
+
+def sublimation_temperature(p: ArrayLike) -> NDArray[np.float64]:
+    """Frost point [K]: the ice temperature whose sublimation pressure is ``p`` (Newton on
+    IAPWS R14-08 eq. (6) in ln p, converged to round-off), same shape as ``p``.
+
+    Parameters
+    ----------
+    p : float or array_like, Pa, from p_subl(150 K) to the triple-point pressure 611.657 Pa
+    """
+    # the bound's own round-off is allowed for, so that p_subl(150 K) from any source is accepted
+    low = float(TRIPLE_POINT_PRESSURE * np.exp(_sublimation_log(T_SUBLIMATION_MIN)[0])) * (1.0 - 1e-9)
+    q = _checked(p, "p", low, TRIPLE_POINT_PRESSURE, "Pa",
+                 "pass a vapour pressure in pascal between the frost point at 150 K and the triple point")
+    target = np.log(q / TRIPLE_POINT_PRESSURE)
+    t = np.full_like(q, TRIPLE_POINT_TEMPERATURE)
+    for _ in range(30):  # ln p_subl is smooth and monotone: Newton from the triple point
+        value, slope = _sublimation_log(t)
+        step = (value - target) / slope
+        t = np.clip(t - step, T_SUBLIMATION_MIN, TRIPLE_POINT_TEMPERATURE)
+        if np.all(np.abs(step) <= 1e-12 * t):
+            break
+    return _out(t)

@@ -65,6 +65,17 @@ def test_dew_point_matches_psychrolib(psychro):
         assert moist_air.dew_point(p_v) == pytest.approx(reference, abs=0.01)
 
 
+def test_frost_point_of_a_dry_room_matches_psychrolib(psychro):
+    # Reference: psychrolib 2.5.0 GetTDewPointFromVapPres, which below the triple point uses the
+    # ASHRAE 2017 ch. 1 eq. (5) saturation over ice (Hyland-Wexler); ours is IAPWS R14-08.
+    # 597 Pa is a 24 C room at 20 % relative humidity.
+    for p_v in (50.0, 100.0, 300.0, 597.0, 611.0):
+        reference = psychro.GetTDewPointFromVapPres(24.0, p_v) + 273.15
+        assert moist_air.dew_point(p_v) == pytest.approx(reference, abs=0.005)
+    both = moist_air.dew_point(np.array([300.0, 2000.0]))  # ice and liquid branches in one call
+    assert both[0] < 273.15 < both[1]
+
+
 def test_humidity_ratio_matches_psychrolib(psychro):
     # Reference: psychrolib 2.5.0 GetHumRatioFromVapPres and GetHumRatioFromRelHum (ASHRAE 2017 eq. 20).
     for p_v, p in ((1584.0, 101325.0), (3000.0, 90000.0), (500.0, 70000.0)):
@@ -156,7 +167,8 @@ def test_scalar_and_array_inputs_give_same_values():
     (lambda: moist_air.air_density(25.0, 101325.0), r"T = 25 K received"),
     (lambda: moist_air.air_density(300.0, 0.0), r"p = 0 Pa received"),
     (lambda: moist_air.wet_bulb_temperature(300.0, 0.5, 100.0), r"p_total = 100 Pa received"),
-    (lambda: moist_air.dew_point(100.0), r"p = 100 Pa received"),
+    (lambda: moist_air.dew_point(0.0), r"p_vapour = 0 Pa received"),
+    (lambda: moist_air.dew_point(1e-6), r"p = 1e-06 Pa received.*frost point at 150 K"),
 ])
 def test_invalid_inputs_raise_property_error(call, pattern):
     with pytest.raises(PropertyError, match=pattern):

@@ -127,3 +127,16 @@ def test_out_of_range_pressure_raises():
         water.saturation_temperature(100.0)
     with pytest.raises(PropertyError, match=r"p = "):
         water.saturation_temperature(3.0e7)
+
+
+def test_sublimation_pressure_matches_iapws_r14():
+    # Reference: iapws 1.5.5, iapws._iapws._Sublimation_Pressure (IAPWS R14-08(2011) eq. (6), MPa):
+    # the same release, so agreement is to round-off.
+    from iapws._iapws import _Sublimation_Pressure
+
+    T = np.array([150.0, 200.0, 233.15, 253.15, 263.15, 273.0, 273.16])
+    reference = np.array([_Sublimation_Pressure(t) * 1e6 for t in T])
+    assert np.allclose(water.sublimation_pressure(T), reference, rtol=1e-12, atol=0.0)
+    # the frost point inverts it to round-off, and the triple point is exact
+    assert np.allclose(water.sublimation_temperature(reference), T, rtol=1e-13, atol=0.0)
+    assert water.sublimation_pressure(273.16) == pytest.approx(611.657, rel=1e-12)

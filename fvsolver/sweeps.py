@@ -1,0 +1,166 @@
+"""Parameter sweeps: one case run over a grid of changed keys, one row per run.
+
+``fvsolver sweep CASE --vary room.relative_humidity=0.3,0.5,0.7 --vary room.air_temperature=293.15:303.15:3``
+runs every combination (the full grid, first key slowest), each in its own folder under
+``runs/``, and writes ``sweep.csv`` (the varied values and each run's key results), updated
+after every run so that a killed sweep keeps the finished rows, ``sweep.json`` at the end, and
+``sweep.png`` (time to target against the first key, one line per value of the others).
+"""
+from __future__ import annotations
+
+import csv
+import io
+import itertools
+import json
+import math
+import time as wall
+import tomllib
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from fvsolver.case.loader import Case, CaseErrors, with_changes
+from fvsolver.errors import CaseError, FvsolverError
+from fvsolver.outputs.files import atomic_write_text
+
+# the summary entries a sweep table carries for every run
+RESULT_COLUMNS = ("status", "target_reached", "time_to_target_s", "target_pressure_drop_pa",
+                  "max_pressure_drop_pa", "stall_reason", "min_temperature_k", "max_temperature_k",
+                  "energy_balance_relative_error", "n_steps")
+
+
+@dataclass(frozen=True)
+class Vary:
+    """One swept key: its dotted path in the case and the values it takes."""
+
+    path: str
+    values: tuple
+
+
+def parse_vary(text: str) -> Vary:
+    """``KEY.PATH=V1,V2,...`` (TOML values; bare words are strings) or ``KEY.PATH=START:STOP:N``
+    (N evenly spaced numbers, both ends included)."""
+    where = f"--vary {text!r}"
+    if "=" not in text:
+        raise CaseError(f"{where}: expected KEY.PATH=VALUES, e.g. room.relative_humidity=0.3,0.5,0.7 "
+                        "or room.air_temperature=293.15:303.15:3")
+    path, _, spec = (s.strip() for s in text.partition("="))
+    if not path or any(not p for p in path.split(".")):
+        raise CaseError(f"{where}: the key path {path!r} is empty or has an empty part; write it as "
+                        "table.key, e.g. room.relative_humidity")
+    parts = spec.split(":")
+    if len(parts) == 3:
+        try:
+            start, stop, count = float(parts[0]), float(parts[1]), int(parts[2])
+        except ValueError:
+            raise CaseError(f"{where}: got range {spec!r}, expected START:STOP:N with numbers START, STOP "
+                            "and a whole N >= 2") from None
+        if count < 2:
+            raise CaseError(f"{where}: got N = {count}, expected at least 2 points in START:STOP:N")
+        return Vary(path, tuple(float(v) for v in np.linspace(start, stop, count)))
+    try:
+        values = tomllib.loads(f"v = [{spec}]")["v"]
+    except tomllib.TOMLDecodeError:
+        values = []
+        for item in spec.split(","):
+            item = item.strip()
+            try:
+                values.append(tomllib.loads(f"v = {item}")["v"])
+            except tomllib.TOMLDecodeError:
+                values.append(item)  # a bare word: a string
+    if not values or any(v == "" for v in values):
+        raise CaseError(f"{where}: got no value (or an empty one) in {spec!r}; give a comma-separated list")
+    return Vary(path, tuple(values))
+
+
+def variants(case: Case, varies: list[Vary]) -> list[tuple[dict, Case]]:
+    """Every combination of the varied values, validated before anything runs.
+
+    Raises CaseErrors with the problems of all combinations at once.
+    """
+    if not varies:
+        raise CaseError("sweep: nothing to vary; give at least one --vary KEY.PATH=VALUES")
+    seen = [v.path for v in varies]
+    if len(set(seen)) != len(seen):
+        raise CaseError(f"sweep: a key is varied twice ({seen}); give each key once with all its values")
+    out, problems = [], []
+    for combo in itertools.product(*(v.values for v in varies)):
+        changes = dict(zip(seen, combo))
+        try:
+            out.append((changes, with_changes(case, changes)))
+        except CaseErrors as exc:
+            problems.extend(exc.problems)
+    if problems:
+        raise CaseErrors(list(dict.fromkeys(problems)))
+    return out
+
+
+def _cell(v: Any) -> str:
+    if v is None:
+        return ""
+    if isinstance(v, float):  # numpy floats too: written as plain Python floats
+        return "nan" if math.isnan(v) else repr(float(v))
+    return str(v)
+
+
+def _table(rows: list[dict]) -> str:
+    buf = io.StringIO()
+    w = csv.DictWriter(buf, fieldnames=list(rows[0]), lineterminator="\n")
+    w.writeheader()
+    for r in rows:
+        w.writerow({k: _cell(v) for k, v in r.items()})
+    return buf.getvalue()
+
+
+def sweep(case: Case, varies: list[Vary], out: str | Path | None = None, overwrite: bool = False,
+          plots: bool = False, progress=None) -> list[dict]:
+    """Run ``case`` over the grid of ``varies``; return one row per run.
+
+    Parameters
+    ----------
+    out : folder for the sweep (None: nothing is written)
+    plots : also draw each run's own plots and report (slower)
+    progress : callable(index, count, changes, row) called after every run, or None
+
+    A run that fails (a solver failure, a property outside its data) is a row with status
+    "failed" and the error in ``reason``; the sweep goes on. Rows carry the varied values, the summary entries of
+    RESULT_COLUMNS, the wall time and the run's folder.
+    """
+    from fvsolver.pipeline import prepare_output, run
+
+    grid = variants(case, varies)  # every combination is checked before anything is written
+    folder = prepare_output(Path(out), overwrite) if out is not None else None
+    rows: list[dict] = []
+    for index, (changes, variant) in enumerate(grid):
+        run_dir = folder / "runs" / f"{index:03d}" if folder is not None else None
+        start = wall.perf_counter()
+        reason = None
+        try:
+            summary = run(variant, run_dir, overwrite=overwrite, plots=plots).summary
+        except FvsolverError as exc:  # a solver failure, or a property asked outside its data
+            summary = {"status": "failed"}
+            if run_dir is not None and (run_dir / "summary.json").exists():
+                summary = json.loads((run_dir / "summary.json").read_text())
+            reason = str(exc)
+        row = {"run": index, **changes}
+        row.update({k: summary.get(k) for k in RESULT_COLUMNS})
+        row["reason"] = reason or summary.get("reason")
+        row["wall_time_s"] = round(wall.perf_counter() - start, 3)
+        row["folder"] = str(Path("runs") / f"{index:03d}") if folder is not None else None
+        rows.append(row)
+        if folder is not None:
+            atomic_write_text(folder / "sweep.csv", _table(rows))
+        if progress is not None:
+            progress(index, len(grid), changes, row)
+    if folder is not None:
+        from fvsolver.plotting import sweep_plot
+
+        if any(r["time_to_target_s"] is not None for r in rows) and isinstance(varies[0].values[0], int | float):
+            sweep_plot(rows, [v.path for v in varies], folder / "sweep.png",
+                       title=f"sweep of {case.path.name if case.path else 'a case'} (other inputs as in the case)")
+        info = {"case_file": str(case.path) if case.path else None, "case_sha256": case.sha256,
+                "vary": {v.path: list(v.values) for v in varies}, "rows": rows}
+        atomic_write_text(folder / "sweep.json", json.dumps(info, indent=2))
+    return rows

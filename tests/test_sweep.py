@@ -1,0 +1,123 @@
+"""Parameter sweeps: the --vary syntax, validation before anything runs, and the table."""
+from __future__ import annotations
+
+import csv
+import json
+
+import pytest
+
+import fvsolver
+from fvsolver.case.loader import CaseErrors, with_changes
+from fvsolver.cli import main
+from fvsolver.errors import CaseError
+from fvsolver.sweeps import Vary, parse_vary, sweep, variants
+from tests.device.helpers import device_case
+
+
+@pytest.mark.parametrize("text, path, values", [
+    ("room.relative_humidity=0.3,0.5,0.7", "room.relative_humidity", (0.3, 0.5, 0.7)),
+    ("room.air_temperature=293.15:303.15:3", "room.air_temperature", (293.15, 298.15, 303.15)),
+    ("room.convection=natural,mixed", "room.convection", ("natural", "mixed")),
+    ('room.convection="forced"', "room.convection", ("forced",)),
+    ("mesh.polar_cells = 20, 40", "mesh.polar_cells", (20, 40)),
+])
+def test_vary_syntax(text, path, values):
+    v = parse_vary(text)
+    assert v.path == path
+    assert v.values == pytest.approx(values) if isinstance(values[0], float) else v.values == values
+
+
+@pytest.mark.parametrize("text, message", [
+    ("room.relative_humidity", "expected KEY.PATH=VALUES"),
+    ("room..x=1", "empty part"),
+    ("room.relative_humidity=0.2:0.8:1", "at least 2"),
+    ("room.relative_humidity=0.2:x:3", "START:STOP:N"),
+    ("room.relative_humidity=", "no value"),
+])
+def test_bad_vary_is_refused_with_the_fix(text, message):
+    with pytest.raises(CaseError, match=message):
+        parse_vary(text)
+
+
+def test_a_changed_case_is_validated_afresh_and_names_the_change():
+    case = device_case()
+    changed = with_changes(case, {"room.relative_humidity": 0.8})
+    assert changed["room"]["relative_humidity"] == 0.8
+    assert changed.sha256 != case.sha256
+    with pytest.raises(CaseErrors, match=r"\[room.relative_humidity = 1.5\].*expected a number in \[0, 1\]"):
+        with_changes(case, {"room.relative_humidity": 1.5})
+    with pytest.raises(CaseErrors, match="did you mean 'relative_humidity'"):
+        with_changes(case, {"room.relative_humdity": 0.5})
+
+
+def test_every_combination_is_checked_before_anything_runs(tmp_path):
+    case = device_case()
+    varies = [Vary("room.relative_humidity", (0.4, 1.2, 1.4)), Vary("room.air_speed", (0.1, 0.3))]
+    with pytest.raises(CaseErrors) as info:
+        sweep(case, varies, tmp_path / "out")
+    assert len(info.value.problems) == 4  # two bad humidities x two speeds, all reported
+    assert not (tmp_path / "out").exists()  # nothing written
+    assert len(variants(case, varies[1:])) == 2  # the good key alone: two valid variants
+
+
+def test_sweep_table_follows_the_physics(tmp_path):
+    """A drier room evaporates faster, so the target comes sooner (the device's main trend);
+    a run that cannot reach the target in its time is a row, not an error."""
+    case = device_case(time={"end": 60.0})
+    rows = fvsolver.sweep(case, {"room.relative_humidity": [0.2, 0.5, 0.8]}, tmp_path / "sw")
+    times = [r["time_to_target_s"] for r in rows]
+    assert all(r["status"] == "complete" for r in rows)
+    reached = [t for t in times if t is not None]
+    assert len(reached) >= 2 and reached == sorted(reached)
+    table = list(csv.DictReader((tmp_path / "sw" / "sweep.csv").open()))
+    assert [float(r["room.relative_humidity"]) for r in table] == [0.2, 0.5, 0.8]
+    assert table[0]["time_to_target_s"] == repr(times[0])
+    assert (tmp_path / "sw" / "sweep.png").stat().st_size > 10_000
+    info = json.loads((tmp_path / "sw" / "sweep.json").read_text())
+    assert info["vary"] == {"room.relative_humidity": [0.2, 0.5, 0.8]}
+    for r in table:  # each run keeps its own summary and history
+        assert (tmp_path / "sw" / r["folder"] / "summary.json").exists()
+        assert not (tmp_path / "sw" / r["folder"] / "history.png").exists()  # plots only with plots=True
+
+
+def test_sweep_command_line(tmp_path, capsys):
+    case = tmp_path / "head.toml"
+    from fvsolver.case.writer import dumps
+    from tests.device.helpers import BASE
+
+    case.write_text(dumps({**BASE, "time": {"end": 30.0}}))
+    code = main(["sweep", str(case), "--vary", "room.air_speed=0.1,0.5", "--out", str(tmp_path / "o")])
+    out = capsys.readouterr().out
+    assert code == 0
+    assert "[1/2] room.air_speed = 0.1" in out and "2 runs, 0 failed" in out
+    code = main(["sweep", str(case), "--vary", "room.air_sped=0.1", "--out", str(tmp_path / "p")])
+    err = capsys.readouterr().err
+    assert code == 2 and "did you mean 'air_speed'" in err
+    assert not (tmp_path / "p").exists()
+
+
+def test_a_room_whose_wet_bulb_is_below_freezing_is_refused_at_input():
+    # 3 C at 10 %: the wet-bulb temperature is about -3.6 C (psychrolib 2.5.0
+    # GetTWetBulbFromRelHum(3.0, 0.1, 101325) = -3.56 C), so the wet cap would freeze; the case
+    # check says so before any run
+    with pytest.raises(CaseErrors, match="wet-bulb temperature is below 0 C"):
+        with_changes(device_case(), {"room.air_temperature": 276.15, "room.relative_humidity": 0.1})
+
+
+def test_a_failing_run_is_a_row_and_the_sweep_goes_on(tmp_path, monkeypatch):
+    import fvsolver.pipeline as pipeline
+    from fvsolver.errors import SolverError
+
+    real = pipeline.run
+
+    def flaky(case, out=None, **kw):
+        if case["room"]["air_speed"] == 0.3:
+            raise SolverError("the step fell below min_step")
+        return real(case, out, **kw)
+
+    monkeypatch.setattr(pipeline, "run", flaky)
+    rows = sweep(device_case(time={"end": 20.0}), [Vary("room.air_speed", (0.1, 0.3, 0.5))], tmp_path / "s")
+    assert [r["status"] for r in rows] == ["complete", "failed", "complete"]
+    assert "min_step" in rows[1]["reason"]
+    table = list(csv.DictReader((tmp_path / "s" / "sweep.csv").open()))
+    assert table[1]["status"] == "failed"
