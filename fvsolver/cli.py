@@ -1,4 +1,4 @@
-"""The command line: ``fvsolver run | sweep | check | mesh | verify``."""
+"""The command line: ``fvsolver run | sweep | compare | check | mesh | verify``."""
 from __future__ import annotations
 
 import argparse
@@ -10,18 +10,22 @@ from fvsolver import __version__
 from fvsolver.errors import CaseError, FvsolverError, MeshError, SolverError
 from fvsolver.pipeline import EXIT_CASE, EXIT_INTERNAL, EXIT_INTERRUPTED, EXIT_OK, EXIT_SOLVER
 
+EXIT_DIFFERS = 1  # compare: a difference beyond its tolerance (as diff does)
+
 EPILOG = """\
 examples:
   fvsolver run cases/demo.toml --out results/demo
   fvsolver run cases/demo.toml --resume results/demo     (continue a killed run)
   fvsolver sweep cases/demo.toml --vary room.relative_humidity=0.3:0.8:6 \
                  --vary room.air_temperature=293.15,298.15 --out results/humidity
+  fvsolver compare results/demo baselines/demo          (a regression check against a kept run)
   fvsolver check cases/glass_bulb_cooling.toml
   fvsolver mesh cases/glass_bulb_cooling.toml --out meshes/head.vtu
   fvsolver verify --out verification
 
-exit codes: 0 success (a target not reached is a result, not an error), 2 bad case file or
-arguments, 3 solver failure, 4 internal error, 130 interrupted
+exit codes: 0 success (a target not reached is a result, not an error), 1 compare: differences
+beyond the tolerances, 2 bad case file or arguments, 3 solver failure, 4 internal error,
+130 interrupted
 """
 
 
@@ -33,6 +37,7 @@ def _parser() -> argparse.ArgumentParser:
     sub = p.add_subparsers(dest="command", required=True)
     for name, text in (("run", "run a case and write its outputs"),
                        ("sweep", "run a case over a grid of changed keys; one table row per run"),
+                       ("compare", "compare a run's outputs with a baseline run's, within tolerances"),
                        ("check", "validate a case file only"),
                        ("mesh", "write the case's mesh as VTU"), ("verify", "run the verification cases")):
         s = sub.add_parser(name, help=text, description=text, epilog=EPILOG,
@@ -56,6 +61,17 @@ def _parser() -> argparse.ArgumentParser:
             s.add_argument("--out", type=Path, default=None, help="output folder (default: results/<case name>_sweep)")
             s.add_argument("--overwrite", action="store_true", help="write into a non-empty output folder")
             s.add_argument("--plots", action="store_true", help="also draw every run's own plots and report")
+        if name == "compare":
+            s.add_argument("new", type=Path, help="output folder of the run to check")
+            s.add_argument("baseline", type=Path, help="output folder of the baseline run")
+            s.add_argument("--rtol", type=float, default=1e-3,
+                           help="relative tolerance of times and pressures (default 1e-3)")
+            s.add_argument("--temperature-tol", type=float, default=0.01, metavar="K",
+                           help="absolute tolerance of temperatures in K (default 0.01)")
+            s.add_argument("--history-rtol", type=float, default=1e-2,
+                           help="tolerance of the pressure-difference history, relative to its largest "
+                                "value or the target (default 1e-2)")
+            s.add_argument("--json", type=Path, default=None, help="also write the checks to this JSON file")
         if name == "mesh":
             s.add_argument("--out", type=Path, required=True, help="the VTU file to write")
         if name == "verify":
@@ -133,6 +149,27 @@ def _sweep(args) -> int:
     return EXIT_SOLVER if failed else EXIT_OK
 
 
+def _compare(args) -> int:
+    import json
+
+    from fvsolver.compare import compare
+    from fvsolver.outputs.files import atomic_write_text
+
+    result = compare(args.new, args.baseline, rtol=args.rtol, temperature_tol=args.temperature_tol,
+                     history_rtol=args.history_rtol)
+    _say(args, f"{args.new} against the baseline {args.baseline}:")
+    _say(args, result.table())
+    failed = [c.quantity for c in result.checks if c.passed is False]
+    if args.json is not None:
+        atomic_write_text(args.json, json.dumps(result.as_dict(), indent=2, default=str))
+    if failed:
+        print(f"DIFFERS in {len(failed)} of {len(result.checks)} checks: {', '.join(failed)}",
+              file=sys.stderr if args.quiet else sys.stdout)
+        return EXIT_DIFFERS
+    _say(args, f"same within the tolerances ({len(result.checks)} checks)")
+    return EXIT_OK
+
+
 class ProgressBar:
     """One line on the terminal: simulated time, step, pressure difference against the target."""
 
@@ -191,7 +228,8 @@ def _verify(args) -> int:
 
 def main(argv: list[str] | None = None) -> int:
     args = _parser().parse_args(argv)
-    handler = {"run": _run, "sweep": _sweep, "check": _check, "mesh": _mesh, "verify": _verify}[args.command]
+    handler = {"run": _run, "sweep": _sweep, "compare": _compare, "check": _check, "mesh": _mesh,
+               "verify": _verify}[args.command]
     try:
         return handler(args)
     except (CaseError, MeshError) as exc:

@@ -357,3 +357,28 @@ def write_pvd(path, entries: list) -> None:
             handle.write(text)
 
     _atomic(os.fspath(path), write)
+
+
+def read_cell_field(path, name: str) -> np.ndarray:
+    """One cell field of a VTU written by :func:`write_fields`, on the cells (not the boundary
+    lines): (n_cells,) or (n_cells, k).
+
+    Raises
+    ------
+    MeshError
+        If the file cannot be read or has no such cell field.
+    """
+    path = os.fspath(path)
+    try:
+        raw = meshio.vtu.read(path)
+    except Exception as exc:  # meshio raises several unrelated types on bad input
+        raise MeshError(f"{path}: cannot be read as a VTU file ({type(exc).__name__}: {exc}); "
+                        "expected a fields file written by fvsolver") from exc
+    if name not in raw.cell_data:
+        raise MeshError(f"{path}: no cell field {name!r} (got {sorted(raw.cell_data)}); expected a fields "
+                        "file written by fvsolver")
+    for block, values in zip(raw.cells, raw.cell_data[name]):
+        if block.type == "quad":
+            values = np.asarray(values, dtype=float)
+            return values[:, 0] if values.ndim == 2 and values.shape[1] == 1 else values
+    raise MeshError(f"{path}: no quadrilateral cells; expected a fields file written by fvsolver")

@@ -1,0 +1,228 @@
+"""Regression checks: a run's outputs against a kept baseline, within stated tolerances.
+
+``fvsolver compare NEW BASELINE`` reads the two output folders (as ``fvsolver run`` writes them)
+and compares
+
+* the outcome exactly: ``status``, ``target_reached`` and the kinds of stall reason (the room is
+  too humid, the cap dried out, heat reaches the head, the end time came first);
+* the key results within a relative tolerance: the time to target, the target and largest
+  pressure differences, the largest internal pressure;
+* temperatures within an absolute tolerance in K: the extremes of the field and of the glass;
+* the histories, interpolated in time onto the baseline's steps over the span both cover: the
+  pressure difference within a tolerance relative to the baseline's largest value (or the
+  target), and every ``*_temperature_k`` column within the temperature tolerance;
+* the temperature field cell by cell at the latest output time both runs wrote, when both have
+  the same mesh (a changed geometry has another mesh: then the field is reported as not
+  compared). The largest pressure difference is not compared once both runs reached the target:
+  past it, it is only the overshoot of the step that stopped the run.
+
+Each check is a row (quantity, baseline, new, difference, tolerance, verdict); the comparison
+passes when every compared row does.
+"""
+from __future__ import annotations
+
+import csv
+import json
+import math
+import xml.etree.ElementTree as ET
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from fvsolver.errors import CaseError
+
+RELATIVE_KEYS = ("time_to_target_s", "target_pressure_drop_pa", "max_pressure_drop_pa", "max_internal_pressure_pa")
+TEMPERATURE_KEYS = ("min_temperature_k", "max_temperature_k", "max_glass_temperature_k")
+EXACT_KEYS = ("status", "target_reached")
+STALL_KINDS = {"too humid": "humid room", "dried out": "cap dried out", "heat reaches the head": "heat reaches the head",
+               "end time": "end time first"}
+
+
+@dataclass
+class Check:
+    quantity: str
+    baseline: object
+    new: object
+    difference: float | None
+    tolerance: str
+    passed: bool | None  # None: not compared (with the reason in note)
+    note: str = ""
+
+
+@dataclass
+class Comparison:
+    new: Path
+    baseline: Path
+    checks: list = field(default_factory=list)
+
+    @property
+    def passed(self) -> bool:
+        return all(c.passed is not False for c in self.checks)
+
+    def table(self) -> str:
+        head = ("quantity", "baseline", "new", "difference", "tolerance", "verdict")
+        rows = [head]
+        for c in self.checks:
+            verdict = "not compared" if c.passed is None else ("ok" if c.passed else "DIFFERS")
+            rows.append((c.quantity, _fmt(c.baseline), _fmt(c.new),
+                         "" if c.difference is None else f"{c.difference:.3g}", c.tolerance,
+                         verdict + (f" ({c.note})" if c.note else "")))
+        widths = [max(len(r[i]) for r in rows) for i in range(len(head))]
+        lines = ["  ".join(v.ljust(w) for v, w in zip(r, widths)).rstrip() for r in rows]
+        lines.insert(1, "  ".join("-" * w for w in widths))
+        return "\n".join(lines)
+
+    def as_dict(self) -> dict:
+        return {"new": str(self.new), "baseline": str(self.baseline), "passed": self.passed,
+                "checks": [c.__dict__ for c in self.checks]}
+
+
+def _fmt(v) -> str:
+    if v is None:
+        return "-"
+    if isinstance(v, float):
+        return f"{v:.6g}"
+    return str(v)
+
+
+def _summary(folder: Path) -> dict:
+    path = folder / "summary.json" if folder.is_dir() else folder
+    if not path.exists():
+        raise CaseError(f"{folder}: no summary.json (got {'a folder' if folder.is_dir() else 'no such path'}); "
+                        "expected an output folder written by `fvsolver run`; run the case first")
+    try:
+        return json.loads(path.read_text())
+    except json.JSONDecodeError as exc:
+        raise CaseError(f"{path}: not valid JSON ({exc}); expected a summary written by `fvsolver run`") from exc
+
+
+def _history(folder: Path) -> dict[str, np.ndarray]:
+    path = folder / "history.csv"
+    if not path.exists():
+        return {}
+    with path.open() as fh:
+        rows = list(csv.DictReader(fh))
+    out = {}
+    for name in rows[0] if rows else []:
+        try:
+            out[name] = np.array([float(r[name]) if r[name] != "" else np.nan for r in rows])
+        except ValueError:
+            continue  # a text column
+    return out
+
+
+def _fields(folder: Path) -> list[tuple[float, Path]]:
+    """(time, VTU path) of every entry of fields.pvd (none without the file)."""
+    pvd = folder / "fields.pvd"
+    if not pvd.exists():
+        return []
+    return [(float(d.get("timestep")), folder / d.get("file")) for d in ET.parse(pvd).iter("DataSet")]
+
+
+def _stall_kinds(reason) -> tuple:
+    if not reason:
+        return ()
+    return tuple(kind for key, kind in STALL_KINDS.items() if key in reason)
+
+
+def compare(new: str | Path, baseline: str | Path, rtol: float = 1e-3, temperature_tol: float = 0.01,
+            history_rtol: float = 1e-2) -> Comparison:
+    """Compare the run in ``new`` against the one in ``baseline`` (output folders).
+
+    Parameters
+    ----------
+    rtol : relative tolerance of the key results (times, pressure differences, pressures)
+    temperature_tol : K, absolute tolerance of temperatures (summary, histories, field)
+    history_rtol : tolerance of the pressure-difference history, relative to the baseline's
+        largest value or the target, whichever is larger
+    """
+    for name, v in (("rtol", rtol), ("temperature_tol", temperature_tol), ("history_rtol", history_rtol)):
+        if not (isinstance(v, int | float) and math.isfinite(v) and v >= 0.0):
+            raise CaseError(f"compare: {name} = {v!r}, expected a finite number >= 0")
+    new, baseline = Path(new), Path(baseline)
+    sn, sb = _summary(new), _summary(baseline)
+    out = Comparison(new, baseline)
+    add = out.checks.append
+    for key in EXACT_KEYS:
+        a, b = sb.get(key), sn.get(key)
+        add(Check(key, a, b, None, "equal", a == b))
+    kb, kn = _stall_kinds(sb.get("stall_reason")), _stall_kinds(sn.get("stall_reason"))
+    add(Check("stall reason (kinds)", ", ".join(kb) or None, ", ".join(kn) or None, None, "equal", kb == kn))
+    both_reached = bool(sb.get("target_reached")) and bool(sn.get("target_reached"))
+    for key in RELATIVE_KEYS:
+        a, b = sb.get(key), sn.get(key)
+        if a is None and b is None:
+            continue
+        if key == "max_pressure_drop_pa" and both_reached:
+            # a run stops on the step after its target: the largest value is that step's overshoot
+            add(Check(key, a, b, None, f"rel {rtol:g}", None, "past the target: the last step's overshoot"))
+            continue
+        if a is None or b is None:
+            add(Check(key, a, b, None, f"rel {rtol:g}", False, "missing on one side"))
+            continue
+        diff = abs(b - a) / max(abs(a), 1e-300)
+        add(Check(key, a, b, diff, f"rel {rtol:g}", diff <= rtol))
+    for key in TEMPERATURE_KEYS:
+        a, b = sb.get(key), sn.get(key)
+        if a is None and b is None:
+            continue
+        if a is None or b is None:
+            add(Check(key, a, b, None, f"{temperature_tol:g} K", False, "missing on one side"))
+            continue
+        add(Check(key, a, b, abs(b - a), f"{temperature_tol:g} K", abs(b - a) <= temperature_tol))
+    _compare_histories(out, _history(baseline), _history(new), sb, history_rtol, temperature_tol)
+    _compare_fields(out, baseline, new, sb, sn, temperature_tol)
+    return out
+
+
+def _compare_histories(out, hb, hn, sb, history_rtol, temperature_tol) -> None:
+    if "time_s" not in hb or "time_s" not in hn:
+        out.checks.append(Check("histories", None, None, None, "", None, "history.csv missing"))
+        return
+    tb, tn = hb["time_s"], hn["time_s"]
+    span = (tb >= max(tb[0], tn[0])) & (tb <= min(tb[-1], tn[-1]))
+    if span.sum() < 2:
+        out.checks.append(Check("histories", None, None, None, "", None, "the runs cover no common time span"))
+        return
+    names = [n for n in hb if n in hn and (n == "pressure_drop_pa" or n.endswith("_temperature_k"))]
+    for name in names:
+        a = hb[name][span]
+        b = np.interp(tb[span], tn, hn[name])
+        worst = float(np.nanmax(np.abs(b - a)))
+        if name == "pressure_drop_pa":
+            scale = max(float(np.nanmax(np.abs(hb[name]))), abs(sb.get("target_pressure_drop_pa") or 0.0), 1e-300)
+            out.checks.append(Check(f"history {name} (largest)", float(np.nanmax(a)), float(np.nanmax(b)),
+                                    worst / scale, f"rel {history_rtol:g}", worst / scale <= history_rtol))
+        else:
+            out.checks.append(Check(f"history {name} (worst step)", None, None, worst, f"{temperature_tol:g} K",
+                                    worst <= temperature_tol))
+
+
+def _compare_fields(out, baseline, new, sb, sn, temperature_tol) -> None:
+    """The temperature field at the latest output time after the start that both runs wrote
+    (a device run that stops at its target ends at a time of its own, so its last field is
+    compared only when both stopped at the same time)."""
+    from fvsolver.vtk_io import read_cell_field
+
+    fb, fn = _fields(baseline), _fields(new)
+    name = "temperature field"
+    if not fb or not fn:
+        out.checks.append(Check(name, None, None, None, "", None, "fields.pvd missing"))
+        return
+    common = [(t, pb, pn) for t, pb in fb for tn, pn in fn
+              if t > 0.0 and abs(t - tn) <= 1e-9 * max(abs(t), 1.0)]
+    if not common:
+        out.checks.append(Check(name, None, None, None, "", None, "no output time after the start in common"))
+        return
+    t, pb, pn = max(common)
+    name = f"temperature field at t = {t:.6g} s"
+    Tb, Tn = read_cell_field(pb, "temperature"), read_cell_field(pn, "temperature")
+    cb, cn = read_cell_field(pb, "cell_volume"), read_cell_field(pn, "cell_volume")
+    if Tb.shape != Tn.shape or not np.allclose(cb, cn, rtol=1e-9, atol=0.0):
+        out.checks.append(Check(name, f"{Tb.size} cells", f"{Tn.size} cells", None, "", None,
+                                "the meshes differ (a geometry or mesh change)"))
+        return
+    worst = float(np.max(np.abs(Tn - Tb)))
+    out.checks.append(Check(name + " (largest cell difference)", None, None, worst, f"{temperature_tol:g} K",
+                            worst <= temperature_tol))

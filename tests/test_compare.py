@@ -1,0 +1,78 @@
+"""Regression checks of a run against a kept baseline."""
+from __future__ import annotations
+
+import json
+
+import pytest
+
+from fvsolver.cli import main
+from fvsolver.compare import compare
+from fvsolver.errors import CaseError
+from fvsolver.pipeline import run
+from tests.device.helpers import device_case
+
+
+def short(**changes):
+    """The small device head for 12 s, fields at 4 s and 8 s (the target is not reached)."""
+    return device_case(time={"end": 12.0}, output={"field_times": [4.0, 8.0]}, **changes)
+
+
+@pytest.fixture(scope="module")
+def baseline(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("baseline") / "run"
+    run(short(), folder, plots=False)
+    return folder
+
+
+def test_a_rerun_matches_its_baseline_in_every_check(baseline, tmp_path):
+    run(short(), tmp_path / "again", plots=False)
+    result = compare(tmp_path / "again", baseline)
+    assert result.passed
+    names = [c.quantity for c in result.checks]
+    assert "temperature field at t = 12 s (largest cell difference)" in names
+    assert any(n.startswith("history pressure_drop_pa") for n in names)
+    assert all(c.passed for c in result.checks), result.table()
+
+
+def test_a_more_humid_room_is_caught(baseline, tmp_path):
+    run(short(room={"relative_humidity": 0.55}), tmp_path / "humid", plots=False)
+    result = compare(tmp_path / "humid", baseline)
+    assert not result.passed
+    failed = {c.quantity for c in result.checks if c.passed is False}
+    assert "history pressure_drop_pa (largest)" in failed
+    assert any("temperature field" in q for q in failed)
+    code = main(["compare", str(tmp_path / "humid"), str(baseline), "--json", str(tmp_path / "c.json")])
+    assert code == 1
+    saved = json.loads((tmp_path / "c.json").read_text())
+    assert saved["passed"] is False and len(saved["checks"]) == len(result.checks)
+    # a loose enough tolerance accepts the change
+    loose = compare(tmp_path / "humid", baseline, rtol=1.0, temperature_tol=5.0, history_rtol=1.0)
+    assert loose.passed
+
+
+def test_a_changed_mesh_compares_results_but_not_fields(baseline, tmp_path):
+    run(short(mesh={"polar_cells": 30}), tmp_path / "finer", plots=False)
+    result = compare(tmp_path / "finer", baseline, rtol=0.05, temperature_tol=0.5, history_rtol=0.05)
+    field = [c for c in result.checks if c.quantity.startswith("temperature field")][0]
+    assert field.passed is None and "meshes differ" in field.note
+    assert result.passed  # the scalar results agree within the looser tolerances
+
+
+def test_a_changed_stall_kind_differs(tmp_path):
+    for name, reason in (("a", "the room is too humid: at 24.0 C and 90 % ..."), ("b", "the end time (60 s) came first")):
+        (tmp_path / name).mkdir()
+        (tmp_path / name / "summary.json").write_text(json.dumps(
+            {"status": "complete", "target_reached": False, "stall_reason": reason}))
+    result = compare(tmp_path / "b", tmp_path / "a")
+    stall = [c for c in result.checks if c.quantity == "stall reason (kinds)"][0]
+    assert stall.baseline == "humid room" and stall.new == "end time first" and stall.passed is False
+    assert not result.passed
+
+
+def test_bad_inputs_are_refused_with_a_fix(tmp_path, capsys):
+    with pytest.raises(CaseError, match="no summary.json.*run the case first"):
+        compare(tmp_path / "missing", tmp_path)
+    with pytest.raises(CaseError, match="rtol = -1"):
+        compare(tmp_path, tmp_path, rtol=-1.0)
+    assert main(["compare", str(tmp_path / "missing"), str(tmp_path)]) == 2
+    assert "no summary.json" in capsys.readouterr().err
