@@ -79,6 +79,10 @@ class Factor:
 
     def __init__(self, lu: spla.SuperLU, n: int, order: np.ndarray | None = None):
         self.lu, self.n, self.order = lu, n, order
+        self._m = lu.shape[0]
+        # the plain case (not bordered, not pre-ordered) is SuperLU's own solve, nothing around it
+        if self._m == n and order is None:
+            self.solve = lu.solve
 
     @property
     def shape(self) -> tuple[int, int]:
@@ -90,7 +94,7 @@ class Factor:
         return int(self.lu.L.nnz + self.lu.U.nnz)
 
     def solve(self, rhs: np.ndarray) -> np.ndarray:
-        m = self.lu.shape[0]
+        m = self._m
         b = rhs if m == self.n else np.concatenate([rhs, np.zeros(m - self.n)])
         if self.order is None:
             return self.lu.solve(b)[: self.n]

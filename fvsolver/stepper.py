@@ -21,7 +21,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from fvsolver.errors import CaseError, FvsolverError, SolverError
-from fvsolver.linear import Factoriser, solve
+from fvsolver.linear import Factoriser, factorise, solve
 
 SCHEMES = ("backward_euler", "bdf2")
 
@@ -302,7 +302,10 @@ class TimeStepper:
         key = (alpha0, dt)
         if key_ok and key in self._lu_cache:
             return self._lu_cache[key]
-        lu = self._factorise(self.problem.jacobian(alpha0, dt, dm, ev))
+        # a constant Jacobian is factorised once per (alpha0, dt): a fresh ordering, and its solves
+        # stay SuperLU's own; a changing one is factorised every step, with the ordering kept
+        factorise_ = factorise if self.problem.constant_jacobian else self._factorise
+        lu = factorise_(self.problem.jacobian(alpha0, dt, dm, ev))
         self.counters.factorisations += 1
         if key_ok:
             if len(self._lu_cache) > 4:
