@@ -107,8 +107,7 @@ class AffineOperator:
 
     def gross(self, T: np.ndarray) -> float:
         """Scale of the gross boundary exchange at T (W), for the balance check."""
-        cells = self.boundary_cells
-        return self.gross_constant + float(np.add.reduce(np.abs(self.boundary_slope * (T[cells] - self.reference[cells]))))
+        return self.gross_constant + kern.gross_exchange(T, self.boundary_cells, self.boundary_slope, self.reference)
 
     @cached_property
     def gross_constant(self) -> float:

@@ -21,6 +21,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from fvsolver.errors import CaseError, FvsolverError, SolverError
+from fvsolver.kernels import conduction as kern
 from fvsolver.linear import Factoriser, factorise, solve
 
 SCHEMES = ("backward_euler", "bdf2")
@@ -390,24 +391,19 @@ class TimeStepper:
         y0 = h.y[0]
         # F(y_n): carried from the last step's own equation, dt F(y_n) = sum a_i m_(n-i), when known
         rate = self._affine_rate if self._affine_rate is not None else op.A @ y0 + op.f0
-        residual = (a0 + a1) * h.m[0]
-        residual -= dt * rate
-        if a2:
-            residual += a2 * h.m[1]
+        m0 = h.m[0]
+        m1 = h.m[1] if a2 else m0  # (a2 = 0: not read)
+        rhs = np.empty_like(y0)
+        kern.affine_rhs(m0, m1, rate, a0 + a1, a2, dt, rhs)  # one pass instead of three
         lu = self._lu(a0, dt, op.capacity, op.evaluation, True)
-        delta = solve(lu, -residual)
+        delta = solve(lu, rhs)
         self.counters.newton_iterations += 1
-        y = y0 + delta
-        change = op.capacity * delta
-        m_new = h.m[0] + change
-        new_rate = a0 * m_new + a1 * h.m[0]
-        if a2:
-            new_rate += a2 * h.m[1]
-        new_rate /= dt
+        y, m_new, new_rate = np.empty_like(y0), np.empty_like(y0), np.empty_like(y0)
+        stored, heat = kern.affine_update(y0, delta, op.capacity, m0, m1, op.inflow, a0, a1, a2, dt,
+                                          y, m_new, new_rate)
         self._pending_rate = new_rate
         gross = op.gross(y)
-        inflow = float(np.add.reduce(op.inflow * y)) + op.inflow0  # not a BLAS dot: no thread stalls
-        stored = float(change.sum())
+        inflow = heat + op.inflow0
         w_new = {}
         for g in self._groups:
             self._gross[g] = gross

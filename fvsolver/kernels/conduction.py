@@ -1,6 +1,7 @@
-"""Face loops of the conduction operator (numba).
+"""Face loops of the conduction operator, and the cell loops of an affine time step (numba).
 
-Short symbols only here: P owner, N neighbour, g face conductance (W/K), T temperature.
+Short symbols only here: P owner, N neighbour, g face conductance (W/K), T temperature,
+m stored energy (J), a0 a1 a2 the step's coefficients.
 """
 from __future__ import annotations
 
@@ -76,3 +77,39 @@ def fill_jacobian(data, diag_pos, owner_pos, neighbour_pos, owner, neighbour, di
         data[diag_pos[neighbour[f]]] += a
         data[owner_pos[f]] -= a
         data[neighbour_pos[f]] -= a
+
+
+@jit
+def affine_rhs(m0, m1, rate, a01, a2, dt, out):
+    """out = -(((a0 + a1) m0 - dt F) + a2 m1): minus the residual of an affine step at y_n
+    (the order of the operations is the NumPy sequence's, so the result is the same bit for bit)."""
+    for i in range(out.shape[0]):
+        out[i] = -((a01 * m0[i] - dt * rate[i]) + a2 * m1[i])
+
+
+@jit
+def affine_update(y0, delta, capacity, m0, m1, inflow, a0, a1, a2, dt, y, m, rate):
+    """The state after an affine step's solve: y = y0 + delta, m = m0 + C delta and the rate
+    dt F(y) = a0 m + a1 m0 + a2 m1 that the step's own equation gives; returns the stored
+    change sum(C delta) and the heat in, inflow . y."""
+    stored = 0.0
+    heat = 0.0
+    for i in range(y0.shape[0]):
+        change = capacity[i] * delta[i]
+        y[i] = y0[i] + delta[i]
+        m[i] = m0[i] + change
+        rate[i] = ((a0 * m[i] + a1 * m0[i]) + a2 * m1[i]) / dt
+        stored += change
+        heat += inflow[i] * y[i]
+    return stored, heat
+
+
+@jit
+def gross_exchange(T, cells, slope, reference):
+    """sum |slope (T - reference)| over the boundary cells: the linear part of the gross
+    boundary exchange of an affine problem (W)."""
+    total = 0.0
+    for j in range(cells.shape[0]):
+        c = cells[j]
+        total += abs(slope[j] * (T[c] - reference[c]))
+    return total

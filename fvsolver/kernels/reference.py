@@ -40,3 +40,22 @@ def jacobian_matrix(owner, neighbour, diag, g, dt):
     rows = np.concatenate([np.arange(n), owner, neighbour])
     cols = np.concatenate([np.arange(n), neighbour, owner])
     return sp.csr_matrix((np.concatenate([d, -a, -a]), (rows, cols)), shape=(n, n))
+
+
+def affine_rhs(m0, m1, rate, a01, a2, dt):
+    residual = a01 * m0
+    residual -= dt * rate
+    residual += a2 * m1
+    return -residual
+
+
+def affine_update(y0, delta, capacity, m0, m1, inflow, a0, a1, a2, dt):
+    change = capacity * delta
+    y = y0 + delta
+    m = m0 + change
+    rate = (a0 * m + a1 * m0 + a2 * m1) / dt
+    return y, m, rate, float(change.sum()), float(inflow @ y)
+
+
+def gross_exchange(T, cells, slope, reference):
+    return float(np.abs(slope * (T[cells] - reference[cells])).sum())

@@ -72,3 +72,23 @@ def test_fill_jacobian_matches_reference(rng):
     diag = 1.5 * dm - 0.7 * ev.boundary_jacobian
     expect = ref.jacobian_matrix(problem.mesh.owner, problem.mesh.neighbour, diag, ev.conductance, 0.7)
     np.testing.assert_allclose(J.toarray(), expect.toarray(), rtol=1e-13, atol=1e-12)
+
+
+def test_affine_step_kernels_match_reference(rng):
+    n = 500
+    m0, m1, rate, cap, inflow, y0, delta = (rng.normal(size=n) for _ in range(7))
+    a0, a1, a2, dt = 1.5, -2.0, 0.5, 0.37
+    out = np.empty(n)
+    kern.affine_rhs(m0, m1, rate, a0 + a1, a2, dt, out)
+    assert np.array_equal(out, ref.affine_rhs(m0, m1, rate, a0 + a1, a2, dt))  # same operations, same bits
+    y, m, r = np.empty(n), np.empty(n), np.empty(n)
+    stored, heat = kern.affine_update(y0, delta, cap, m0, m1, inflow, a0, a1, a2, dt, y, m, r)
+    y_ref, m_ref, r_ref, stored_ref, heat_ref = ref.affine_update(y0, delta, cap, m0, m1, inflow, a0, a1, a2, dt)
+    assert np.array_equal(y, y_ref) and np.array_equal(m, m_ref)
+    assert np.allclose(r, r_ref, rtol=1e-14, atol=1e-14)
+    assert stored == pytest.approx(stored_ref, rel=1e-12, abs=1e-12)
+    assert heat == pytest.approx(heat_ref, rel=1e-12, abs=1e-12)
+    cells = rng.choice(n, 60, replace=False)
+    slope, reference = rng.normal(size=60), rng.normal(size=n)
+    assert kern.gross_exchange(y0, cells, slope, reference) == pytest.approx(
+        ref.gross_exchange(y0, cells, slope, reference), rel=1e-13)
