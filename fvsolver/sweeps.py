@@ -41,7 +41,8 @@ class Vary:
 
 def parse_vary(text: str) -> Vary:
     """``KEY.PATH=V1,V2,...`` (TOML values; bare words are strings) or ``KEY.PATH=START:STOP:N``
-    (N evenly spaced numbers, both ends included)."""
+    (N evenly spaced numbers, both ends included; whole numbers when START and STOP are written
+    as whole numbers, for cell counts)."""
     where = f"--vary {text!r}"
     if "=" not in text:
         raise CaseError(f"{where}: expected KEY.PATH=VALUES, e.g. room.relative_humidity=0.3,0.5,0.7 "
@@ -59,7 +60,13 @@ def parse_vary(text: str) -> Vary:
                             "and a whole N >= 2") from None
         if count < 2:
             raise CaseError(f"{where}: got N = {count}, expected at least 2 points in START:STOP:N")
-        return Vary(path, tuple(float(v) for v in np.linspace(start, stop, count)))
+        values = np.linspace(start, stop, count)
+        if all(p.strip().lstrip("+-").isdigit() for p in parts[:2]):  # whole-number ends: whole values
+            if not np.all(values == np.round(values)):
+                raise CaseError(f"{where}: the whole-number range {spec!r} does not step by whole numbers; "
+                                f"choose N so that (STOP - START) / (N - 1) is whole, or write START as {start:g}.0")
+            return Vary(path, tuple(int(v) for v in np.round(values)))
+        return Vary(path, tuple(float(v) for v in values))
     try:
         values = tomllib.loads(f"v = [{spec}]")["v"]
     except tomllib.TOMLDecodeError:

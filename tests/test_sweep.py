@@ -20,6 +20,7 @@ from tests.device.helpers import device_case
     ("room.convection=natural,mixed", "room.convection", ("natural", "mixed")),
     ('room.convection="forced"', "room.convection", ("forced",)),
     ("mesh.polar_cells = 20, 40", "mesh.polar_cells", (20, 40)),
+    ("mesh.polar_cells=20:40:3", "mesh.polar_cells", (20, 30, 40)),
 ])
 def test_vary_syntax(text, path, values):
     v = parse_vary(text)
@@ -33,6 +34,7 @@ def test_vary_syntax(text, path, values):
     ("room.relative_humidity=0.2:0.8:1", "at least 2"),
     ("room.relative_humidity=0.2:x:3", "START:STOP:N"),
     ("room.relative_humidity=", "no value"),
+    ("mesh.polar_cells=20:40:4", "does not step by whole numbers"),
 ])
 def test_bad_vary_is_refused_with_the_fix(text, message):
     with pytest.raises(CaseError, match=message):
