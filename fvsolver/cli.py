@@ -61,6 +61,8 @@ def _parser() -> argparse.ArgumentParser:
             s.add_argument("--out", type=Path, default=None, help="output folder (default: results/<case name>_sweep)")
             s.add_argument("--overwrite", action="store_true", help="write into a non-empty output folder")
             s.add_argument("--plots", action="store_true", help="also draw every run's own plots and report")
+            s.add_argument("--jobs", type=int, default=1, metavar="N",
+                           help="runs at a time, in worker processes (default 1; up to the number of cores)")
         if name == "compare":
             s.add_argument("new", type=Path, help="output folder of the run to check")
             s.add_argument("baseline", type=Path, help="output folder of the baseline run")
@@ -143,7 +145,7 @@ def _sweep(args) -> int:
             result = f"target NOT reached: {row['stall_reason']}"
         _say(args, f"  [{index + 1}/{count}] {what}: {result} ({row['wall_time_s']:.1f} s)")
 
-    rows = sweep(case, varies, out, overwrite=args.overwrite, plots=args.plots, progress=progress)
+    rows = sweep(case, varies, out, overwrite=args.overwrite, plots=args.plots, progress=progress, jobs=args.jobs)
     failed = sum(r["status"] == "failed" for r in rows)
     _say(args, f"{len(rows)} runs, {failed} failed; table in {out / 'sweep.csv'}")
     return EXIT_SOLVER if failed else EXIT_OK

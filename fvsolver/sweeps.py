@@ -8,20 +8,24 @@ after every run so that a killed sweep keeps the finished rows, ``sweep.json`` a
 """
 from __future__ import annotations
 
+import contextlib
 import csv
 import io
 import itertools
 import json
 import math
+import multiprocessing
+import os
 import time as wall
 import tomllib
+from concurrent.futures import ProcessPoolExecutor, as_completed
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
-from fvsolver.case.loader import Case, CaseErrors, with_changes
+from fvsolver.case.loader import Case, CaseErrors, _freeze, thaw, with_changes
 from fvsolver.errors import CaseError, FvsolverError
 from fvsolver.outputs.files import atomic_write_text
 
@@ -121,46 +125,102 @@ def _table(rows: list[dict]) -> str:
     return buf.getvalue()
 
 
+def _execute(variant: Case, run_dir: Path | None, overwrite: bool, plots: bool) -> tuple[dict, str | None, float]:
+    """One run of a sweep: (summary, the error of a failed run or None, wall seconds)."""
+    from fvsolver.pipeline import run
+
+    start = wall.perf_counter()
+    try:
+        return run(variant, run_dir, overwrite=overwrite, plots=plots).summary, None, wall.perf_counter() - start
+    except FvsolverError as exc:  # a solver failure, or a property asked outside its data
+        summary = {"status": "failed"}
+        if run_dir is not None and (run_dir / "summary.json").exists():
+            summary = json.loads((run_dir / "summary.json").read_text())
+        return summary, str(exc), wall.perf_counter() - start
+
+
+def _execute_in_worker(base: tuple, changes: dict, run_dir, overwrite: bool, plots: bool):
+    """_execute in a worker process: the variant is rebuilt there from the base case's text
+    (a frozen case does not pickle) and validated again, as in the parent."""
+    path, text, data = base
+    case = Case(path, _freeze(data) if data is not None else None, text, "")
+    return _execute(with_changes(case, changes), run_dir, overwrite, plots)
+
+
+@contextlib.contextmanager
+def _one_blas_thread_per_worker():
+    """Workers started inside this block run their BLAS on one thread each (the sweep's
+    parallelism is the runs themselves; threads on top would only contend for the cores)."""
+    keys = ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS")
+    saved = {k: os.environ.get(k) for k in keys}
+    os.environ.update({k: "1" for k in keys})
+    try:
+        yield
+    finally:
+        for k, v in saved.items():
+            if v is None:
+                os.environ.pop(k, None)
+            else:
+                os.environ[k] = v
+
+
 def sweep(case: Case, varies: list[Vary], out: str | Path | None = None, overwrite: bool = False,
-          plots: bool = False, progress=None) -> list[dict]:
-    """Run ``case`` over the grid of ``varies``; return one row per run.
+          plots: bool = False, progress=None, jobs: int = 1) -> list[dict]:
+    """Run ``case`` over the grid of ``varies``; return one row per run, in grid order.
 
     Parameters
     ----------
     out : folder for the sweep (None: nothing is written)
     plots : also draw each run's own plots and report (slower)
     progress : callable(index, count, changes, row) called after every run, or None
+    jobs : runs at a time (worker processes); 1 runs them one after the other in this process
 
     A run that fails (a solver failure, a property outside its data) is a row with status
-    "failed" and the error in ``reason``; the sweep goes on. Rows carry the varied values, the summary entries of
-    RESULT_COLUMNS, the wall time and the run's folder.
+    "failed" and the error in ``reason``; the sweep goes on. Rows carry the varied values, the
+    summary entries of RESULT_COLUMNS, the wall time and the run's folder.
     """
-    from fvsolver.pipeline import prepare_output, run
+    from fvsolver.pipeline import prepare_output
 
+    if not (isinstance(jobs, int) and 1 <= jobs <= 256):
+        raise CaseError(f"--jobs: got {jobs!r}, expected a whole number of runs at a time from 1 to 256 "
+                        f"(this machine has {os.cpu_count()} cores)")
     grid = variants(case, varies)  # every combination is checked before anything is written
     folder = prepare_output(Path(out), overwrite) if out is not None else None
-    rows: list[dict] = []
-    for index, (changes, variant) in enumerate(grid):
-        run_dir = folder / "runs" / f"{index:03d}" if folder is not None else None
-        start = wall.perf_counter()
-        reason = None
-        try:
-            summary = run(variant, run_dir, overwrite=overwrite, plots=plots).summary
-        except FvsolverError as exc:  # a solver failure, or a property asked outside its data
-            summary = {"status": "failed"}
-            if run_dir is not None and (run_dir / "summary.json").exists():
-                summary = json.loads((run_dir / "summary.json").read_text())
-            reason = str(exc)
+    done: dict[int, dict] = {}
+
+    def record(index: int, result: tuple) -> None:
+        summary, reason, seconds = result
+        changes = grid[index][0]
         row = {"run": index, **changes}
         row.update({k: summary.get(k) for k in RESULT_COLUMNS})
         row["reason"] = reason or summary.get("reason")
-        row["wall_time_s"] = round(wall.perf_counter() - start, 3)
+        row["wall_time_s"] = round(seconds, 3)
         row["folder"] = str(Path("runs") / f"{index:03d}") if folder is not None else None
-        rows.append(row)
+        done[index] = row
         if folder is not None:
-            atomic_write_text(folder / "sweep.csv", _table(rows))
+            atomic_write_text(folder / "sweep.csv", _table([done[i] for i in sorted(done)]))
         if progress is not None:
             progress(index, len(grid), changes, row)
+
+    def run_dir(index: int) -> Path | None:
+        return folder / "runs" / f"{index:03d}" if folder is not None else None
+
+    if jobs == 1 or len(grid) == 1:
+        for index, (_, variant) in enumerate(grid):
+            record(index, _execute(variant, run_dir(index), overwrite, plots))
+    else:
+        base = (case.path, case.text, None if case.text else thaw(case.data))
+        with _one_blas_thread_per_worker(), ProcessPoolExecutor(
+                max_workers=min(jobs, len(grid)), mp_context=multiprocessing.get_context("spawn")) as pool:
+            pending = {pool.submit(_execute_in_worker, base, changes, run_dir(i), overwrite, plots): i
+                       for i, (changes, _) in enumerate(grid)}
+            try:
+                for future in as_completed(pending):
+                    record(pending[future], future.result())
+            except BaseException:
+                pool.shutdown(wait=False, cancel_futures=True)
+                raise
+    rows = [done[i] for i in sorted(done)]
     if folder is not None:
         from fvsolver.plotting import sweep_plot
 

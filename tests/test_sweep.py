@@ -123,3 +123,16 @@ def test_a_failing_run_is_a_row_and_the_sweep_goes_on(tmp_path, monkeypatch):
     assert "min_step" in rows[1]["reason"]
     table = list(csv.DictReader((tmp_path / "s" / "sweep.csv").open()))
     assert table[1]["status"] == "failed"
+
+
+def test_runs_in_worker_processes_give_the_same_table(tmp_path):
+    case = device_case(time={"end": 15.0})
+    varies = [Vary("room.relative_humidity", (0.3, 0.6)), Vary("room.air_speed", (0.1, 0.4))]
+    one = sweep(case, varies, tmp_path / "one")
+    two = sweep(case, varies, tmp_path / "two", jobs=2)
+    keys = ("run", "room.relative_humidity", "room.air_speed", "status", "max_pressure_drop_pa",
+            "min_temperature_k", "n_steps")
+    assert [[r[k] for k in keys] for r in two] == [[r[k] for k in keys] for r in one]  # same bits
+    assert (tmp_path / "two" / "sweep.csv").read_text().count("\n") == 5
+    with pytest.raises(CaseError, match="--jobs: got 0"):
+        sweep(case, varies, tmp_path / "three", jobs=0)
