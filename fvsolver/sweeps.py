@@ -3,8 +3,9 @@
 ``fvsolver sweep CASE --vary room.relative_humidity=0.3,0.5,0.7 --vary room.air_temperature=293.15:303.15:3``
 runs every combination (the full grid, first key slowest), each in its own folder under
 ``runs/``, and writes ``sweep.csv`` (the varied values and each run's key results), updated
-after every run so that a killed sweep keeps the finished rows, ``sweep.json`` at the end, and
-``sweep.png`` (time to target against the first key, one line per value of the others).
+after every run so that a killed sweep keeps the finished rows, ``sweep.json`` at the end,
+``sweep.png`` (time to target against the first key, one line per value of the others) and
+``sweep.md`` (the runs, the safety figures over all of them and the cautions).
 """
 from __future__ import annotations
 
@@ -32,6 +33,7 @@ from fvsolver.outputs.files import atomic_write_text
 # the summary entries a sweep table carries for every run
 RESULT_COLUMNS = ("status", "target_reached", "time_to_target_s", "target_pressure_drop_pa",
                   "max_pressure_drop_pa", "stall_reason", "min_temperature_k", "max_temperature_k",
+                  "max_internal_pressure_pa", "max_glass_temperature_k", "warnings",
                   "energy_balance_relative_error", "n_steps")
 
 
@@ -193,6 +195,7 @@ def sweep(case: Case, varies: list[Vary], out: str | Path | None = None, overwri
         changes = grid[index][0]
         row = {"run": index, **changes}
         row.update({k: summary.get(k) for k in RESULT_COLUMNS})
+        row["warnings"] = "; ".join(row["warnings"] or []) or None
         row["reason"] = reason or summary.get("reason")
         row["wall_time_s"] = round(seconds, 3)
         row["folder"] = str(Path("runs") / f"{index:03d}") if folder is not None else None
@@ -222,11 +225,16 @@ def sweep(case: Case, varies: list[Vary], out: str | Path | None = None, overwri
                 raise
     rows = [done[i] for i in sorted(done)]
     if folder is not None:
+        from fvsolver.outputs.sweep_report import write_sweep_report
         from fvsolver.plotting import sweep_plot
 
+        name = case.path.name if case.path else "a case"
+        plot = None
         if any(r["time_to_target_s"] is not None for r in rows) and isinstance(varies[0].values[0], int | float):
             sweep_plot(rows, [v.path for v in varies], folder / "sweep.png",
-                       title=f"sweep of {case.path.name if case.path else 'a case'} (other inputs as in the case)")
+                       title=f"sweep of {name} (other inputs as in the case)")
+            plot = "sweep.png"
+        write_sweep_report(folder, f"Sweep of {name}", [v.path for v in varies], rows, plot)
         info = {"case_file": str(case.path) if case.path else None, "case_sha256": case.sha256,
                 "vary": {v.path: list(v.values) for v in varies}, "rows": rows}
         atomic_write_text(folder / "sweep.json", json.dumps(info, indent=2))

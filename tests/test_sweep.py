@@ -75,6 +75,9 @@ def test_sweep_table_follows_the_physics(tmp_path):
     assert [float(r["room.relative_humidity"]) for r in table] == [0.2, 0.5, 0.8]
     assert table[0]["time_to_target_s"] == repr(times[0])
     assert (tmp_path / "sw" / "sweep.png").stat().st_size > 10_000
+    page = (tmp_path / "sw" / "sweep.md").read_text()
+    assert "3 runs:" in page and "## Cautions" in page and "fume hood" in page
+    assert "Largest absolute internal pressure over all runs" in page
     info = json.loads((tmp_path / "sw" / "sweep.json").read_text())
     assert info["vary"] == {"room.relative_humidity": [0.2, 0.5, 0.8]}
     for r in table:  # each run keeps its own summary and history
