@@ -17,7 +17,8 @@ and compares
   past it, it is only the overshoot of the step that stopped the run.
 
 Each check is a row (quantity, baseline, new, difference, tolerance, verdict); the comparison
-passes when every compared row does.
+passes when every compared row does. Two sweep folders (``fvsolver sweep``) are compared run by
+run, once their grids (varied keys and values) are the same.
 """
 from __future__ import annotations
 
@@ -141,6 +142,8 @@ def compare(new: str | Path, baseline: str | Path, rtol: float = 1e-3, temperatu
         if not (isinstance(v, int | float) and math.isfinite(v) and v >= 0.0):
             raise CaseError(f"compare: {name} = {v!r}, expected a finite number >= 0")
     new, baseline = Path(new), Path(baseline)
+    if (new / "sweep.json").exists() and (baseline / "sweep.json").exists():
+        return _compare_sweeps(new, baseline, rtol, temperature_tol, history_rtol)
     sn, sb = _summary(new), _summary(baseline)
     out = Comparison(new, baseline)
     add = out.checks.append
@@ -226,3 +229,26 @@ def _compare_fields(out, baseline, new, sb, sn, temperature_tol) -> None:
     worst = float(np.max(np.abs(Tn - Tb)))
     out.checks.append(Check(name + " (largest cell difference)", None, None, worst, f"{temperature_tol:g} K",
                             worst <= temperature_tol))
+
+
+def _compare_sweeps(new: Path, baseline: Path, rtol, temperature_tol, history_rtol) -> Comparison:
+    """Two sweep folders: the same grid, then every run against its baseline run (rows prefixed
+    with the run's varied values)."""
+    jn, jb = (json.loads((f / "sweep.json").read_text()) for f in (new, baseline))
+    out = Comparison(new, baseline)
+    same_grid = jn["vary"] == jb["vary"]
+    out.checks.append(Check("sweep grid (varied keys and values)", json.dumps(jb["vary"]), json.dumps(jn["vary"]),
+                            None, "equal", same_grid))
+    if not same_grid:
+        return out
+    keys = list(jb["vary"])
+    for rb, rn in zip(jb["rows"], jn["rows"]):
+        label = ", ".join(f"{k} = {rb[k]}" for k in keys)
+        if rb.get("folder") is None or rn.get("folder") is None:
+            out.checks.append(Check(f"[{label}] run folder", None, None, None, "", None, "not written"))
+            continue
+        sub = compare(new / rn["folder"], baseline / rb["folder"], rtol, temperature_tol, history_rtol)
+        for c in sub.checks:
+            c.quantity = f"[{label}] {c.quantity}"
+            out.checks.append(c)
+    return out

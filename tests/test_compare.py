@@ -76,3 +76,18 @@ def test_bad_inputs_are_refused_with_a_fix(tmp_path, capsys):
         compare(tmp_path, tmp_path, rtol=-1.0)
     assert main(["compare", str(tmp_path / "missing"), str(tmp_path)]) == 2
     assert "no summary.json" in capsys.readouterr().err
+
+
+def test_two_sweeps_are_compared_run_by_run(tmp_path):
+    from fvsolver.sweeps import Vary, sweep
+
+    case = short()
+    sweep(case, [Vary("room.air_speed", (0.1, 0.4))], tmp_path / "base")
+    sweep(case, [Vary("room.air_speed", (0.1, 0.4))], tmp_path / "again")
+    same = compare(tmp_path / "again", tmp_path / "base")
+    assert same.passed
+    assert any(c.quantity.startswith("[room.air_speed = 0.4] time_to_target_s") or
+               c.quantity.startswith("[room.air_speed = 0.4] history pressure_drop_pa") for c in same.checks)
+    sweep(case, [Vary("room.air_speed", (0.1, 0.5))], tmp_path / "other")
+    grid = compare(tmp_path / "other", tmp_path / "base")
+    assert not grid.passed and grid.checks[0].quantity.startswith("sweep grid")
