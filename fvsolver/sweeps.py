@@ -204,6 +204,10 @@ def sweep(case: Case, varies: list[Vary], out: str | Path | None = None, overwri
             atomic_write_text(folder / "sweep.csv", _table([done[i] for i in sorted(done)]))
         if progress is not None:
             progress(index, len(grid), changes, row)
+        if row["status"] == "interrupted":
+            # Ctrl-C stopped this run (which saved a checkpoint): stop the sweep too, leaving
+            # sweep.csv with the rows so far and no sweep.json (the mark of a finished sweep)
+            raise KeyboardInterrupt
 
     def run_dir(index: int) -> Path | None:
         return folder / "runs" / f"{index:03d}" if folder is not None else None

@@ -139,3 +139,22 @@ def test_runs_in_worker_processes_give_the_same_table(tmp_path):
     assert (tmp_path / "two" / "sweep.csv").read_text().count("\n") == 5
     with pytest.raises(CaseError, match="--jobs: got 0"):
         sweep(case, varies, tmp_path / "three", jobs=0)
+
+
+def test_an_interrupted_run_stops_the_sweep_and_leaves_no_finished_mark(tmp_path, monkeypatch):
+    import fvsolver.pipeline as pipeline
+
+    real = pipeline.run
+
+    def interrupted(case, out=None, **kw):
+        result = real(case, out, **kw)
+        if case["room"]["air_speed"] == 0.3:  # as if Ctrl-C came during this run
+            result.summary["status"] = "interrupted"
+        return result
+
+    monkeypatch.setattr(pipeline, "run", interrupted)
+    with pytest.raises(KeyboardInterrupt):
+        sweep(device_case(time={"end": 10.0}), [Vary("room.air_speed", (0.1, 0.3, 0.5))], tmp_path / "s")
+    table = list(csv.DictReader((tmp_path / "s" / "sweep.csv").open()))
+    assert [r["status"] for r in table] == ["complete", "interrupted"]
+    assert not (tmp_path / "s" / "sweep.json").exists()
