@@ -153,29 +153,24 @@ def compare(new: str | Path, baseline: str | Path, rtol: float = 1e-3, temperatu
     kb, kn = _stall_kinds(sb.get("stall_reason")), _stall_kinds(sn.get("stall_reason"))
     add(Check("stall reason (kinds)", ", ".join(kb) or None, ", ".join(kn) or None, None, "equal", kb == kn))
     both_reached = bool(sb.get("target_reached")) and bool(sn.get("target_reached"))
-    for key in RELATIVE_KEYS:
+    relative = [(k, f"rel {rtol:g}") for k in RELATIVE_KEYS]
+    absolute = [(k, f"{temperature_tol:g} K") for k in TEMPERATURE_KEYS]
+    for key, tolerance in relative + absolute:
         a, b = sb.get(key), sn.get(key)
         if a is None and b is None:
             continue
         if key == "max_pressure_drop_pa" and both_reached:
             # a run stops on the step after its target: the largest value is that step's overshoot
-            add(Check(key, a, b, None, f"rel {rtol:g}", None, "past the target: the last step's overshoot"))
-            continue
-        if a is None or b is None:
-            add(Check(key, a, b, None, f"rel {rtol:g}", False, "missing on one side"))
-            continue
-        diff = abs(b - a) / max(abs(a), 1e-300)
-        add(Check(key, a, b, diff, f"rel {rtol:g}", diff <= rtol))
-    for key in TEMPERATURE_KEYS:
-        a, b = sb.get(key), sn.get(key)
-        if a is None and b is None:
-            continue
-        if a is None or b is None:
-            add(Check(key, a, b, None, f"{temperature_tol:g} K", False, "missing on one side"))
-            continue
-        add(Check(key, a, b, abs(b - a), f"{temperature_tol:g} K", abs(b - a) <= temperature_tol))
+            add(Check(key, a, b, None, tolerance, None, "past the target: the last step's overshoot"))
+        elif a is None or b is None:
+            add(Check(key, a, b, None, tolerance, False, "missing on one side"))
+        elif key in RELATIVE_KEYS:
+            diff = abs(b - a) / max(abs(a), 1e-300)
+            add(Check(key, a, b, diff, tolerance, diff <= rtol))
+        else:
+            add(Check(key, a, b, abs(b - a), tolerance, abs(b - a) <= temperature_tol))
     _compare_histories(out, _history(baseline), _history(new), sb, history_rtol, temperature_tol)
-    _compare_fields(out, baseline, new, sb, sn, temperature_tol)
+    _compare_fields(out, baseline, new, temperature_tol)
     return out
 
 
@@ -202,7 +197,7 @@ def _compare_histories(out, hb, hn, sb, history_rtol, temperature_tol) -> None:
                                     worst <= temperature_tol))
 
 
-def _compare_fields(out, baseline, new, sb, sn, temperature_tol) -> None:
+def _compare_fields(out, baseline, new, temperature_tol) -> None:
     """The temperature field at the latest output time after the start that both runs wrote
     (a device run that stops at its target ends at a time of its own, so its last field is
     compared only when both stopped at the same time)."""

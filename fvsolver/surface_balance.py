@@ -20,13 +20,13 @@ def solve_surface(terms, kappa, t_foot, guess, time, centres, faces, context):
     lo, hi = ts - 0.5, ts + 0.5
 
     def residual(idx, x):
-        """F at ``x`` on the faces ``idx`` (indices into this patch's faces)."""
+        """F and dF/dT_s at ``x`` on the faces ``idx`` (indices into this patch's faces)."""
         sub = faces[idx] if faces is not None else None
-        q, _ = term_sum(terms, x, time, centres[idx], sub, context)
-        return kappa[idx] * (x - t_foot[idx]) - q
+        q, dq = term_sum(terms, x, time, centres[idx], sub, context)
+        return kappa[idx] * (x - t_foot[idx]) - q, kappa[idx] - dq
 
     every = np.arange(ts.size)
-    f_lo, f_hi = residual(every, lo), residual(every, hi)
+    f_lo, f_hi = residual(every, lo)[0], residual(every, hi)[0]
     for _ in range(60):  # widen the bracket until F(lo) <= 0 <= F(hi), on the faces that need it
         bad_lo, bad_hi = np.flatnonzero(f_lo > 0.0), np.flatnonzero(f_hi < 0.0)
         if not (bad_lo.size or bad_hi.size):
@@ -34,19 +34,16 @@ def solve_surface(terms, kappa, t_foot, guess, time, centres, faces, context):
         width = hi - lo
         if bad_lo.size:
             lo[bad_lo] -= width[bad_lo]
-            f_lo[bad_lo] = residual(bad_lo, lo[bad_lo])
+            f_lo[bad_lo] = residual(bad_lo, lo[bad_lo])[0]
         if bad_hi.size:
             hi[bad_hi] += width[bad_hi]
-            f_hi[bad_hi] = residual(bad_hi, hi[bad_hi])
+            f_hi[bad_hi] = residual(bad_hi, hi[bad_hi])[0]
     active = np.arange(ts.size)
     for _ in range(SURFACE_ITERATIONS * 2):
         # only the faces not yet converged are iterated (a face switching from condensing to
         # dry converges more slowly than the rest)
         x, l, h, fl, fh = ts[active], lo[active], hi[active], f_lo[active], f_hi[active]
-        sub = faces[active] if faces is not None else None
-        q, dq = term_sum(terms, x, time, centres[active], sub, context)
-        f = kappa[active] * (x - t_foot[active]) - q
-        df = kappa[active] - dq
+        f, df = residual(active, x)
         below = f <= 0.0
         l, fl = np.where(below, x, l), np.where(below, f, fl)
         h, fh = np.where(~below, x, h), np.where(~below, f, fh)

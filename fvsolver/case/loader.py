@@ -308,25 +308,24 @@ def _set_path(data: dict, path: str, value: Any) -> None:
     "heat_sources.0.power"); missing tables are created, list entries are addressed by index."""
     parts = path.split(".")
     node: Any = data
-    for i, part in enumerate(parts[:-1]):
+    for i, part in enumerate(parts):
+        last = i == len(parts) - 1
+        where = ".".join(parts[:i])
         if isinstance(node, list):
             if not part.isdigit() or int(part) >= len(node):
-                raise CaseErrors([f"{'.'.join(parts[:i])}: got index {part!r}, expected one of "
-                                  f"0..{len(node) - 1} (the list has {len(node)} entries)"])
-            node = node[int(part)]
-            continue
-        if not isinstance(node, dict):
-            raise CaseErrors([f"{'.'.join(parts[:i])}: is a value, not a table; cannot set {path}"])
-        node = node.setdefault(part, {})
-    last = parts[-1]
-    if isinstance(node, list):
-        if not last.isdigit() or int(last) >= len(node):
-            raise CaseErrors([f"{'.'.join(parts[:-1])}: got index {last!r}, expected one of 0..{len(node) - 1}"])
-        node[int(last)] = value
-    elif isinstance(node, dict):
-        node[last] = value
-    else:
-        raise CaseErrors([f"{'.'.join(parts[:-1])}: is a value, not a table; cannot set {path}"])
+                raise CaseErrors([f"{where}: got index {part!r}, expected one of 0..{len(node) - 1} "
+                                  f"(the list has {len(node)} entries)"])
+            if last:
+                node[int(part)] = value
+            else:
+                node = node[int(part)]
+        elif isinstance(node, dict):
+            if last:
+                node[part] = value
+            else:
+                node = node.setdefault(part, {})
+        else:
+            raise CaseErrors([f"{where}: is a value, not a table; cannot set {path}"])
 
 
 def with_changes(case: Case, changes: dict[str, Any], label: str | None = None) -> Case:

@@ -301,8 +301,8 @@ class DeviceProblem:
         per_tv = 0.5 * p_v / t_v  # d(p_v / sqrt(T_v)) / dT_v at fixed m_v, in units of dp_v / sqrt(T_v)
         dts_dtv = lat * x["dj_dp"] * per_tv / (kap - g1)
         dJ_dtv = x["dj_dp"] * per_tv + x["dj_dt"] * dts_dtv
-        # it is kept as the update u w^T (w: the wall cells' area weights), which linear.factorise
-        # borders instead of forming the dense block
+        # it is kept as the update u w^T (w: the wall cells' area weights), which fvsolver.linear
+        # factorises through the bordered system instead of forming the dense block
         weight = area / max(area.sum(), 1e-300)
         u = np.zeros(self.n)
         np.add.at(u, P, -dt * area * kap * dts_dtv)
