@@ -76,6 +76,7 @@ def _parser() -> argparse.ArgumentParser:
             s.add_argument("--json", type=Path, default=None, help="also write the checks to this JSON file")
         if name == "mesh":
             s.add_argument("--out", type=Path, required=True, help="the VTU file to write")
+            s.add_argument("--overwrite", action="store_true", help="replace an existing file")
         if name == "verify":
             s.add_argument("--out", type=Path, default=Path("verification"), help="folder for the report")
             s.add_argument("--slow", action="store_true", help="add the finest refinement levels")
@@ -92,6 +93,9 @@ def _run(args) -> int:
     from fvsolver.case import load_case
     from fvsolver.pipeline import run
 
+    if args.resume is not None and args.out is not None and args.out.resolve() != args.resume.resolve():
+        raise CaseError(f"--resume {args.resume} --out {args.out}: a resumed run continues in its own folder; "
+                        "leave out --out (or copy the folder first and resume the copy)")
     case = load_case(args.case)
     out = args.resume or args.out or Path("results") / args.case.stem
     bar = ProgressBar(case["time"]["end"]) if sys.stderr.isatty() and not args.quiet else None
@@ -163,7 +167,10 @@ def _compare(args) -> int:
     _say(args, result.table())
     failed = [c.quantity for c in result.checks if c.passed is False]
     if args.json is not None:
-        atomic_write_text(args.json, json.dumps(result.as_dict(), indent=2, default=str))
+        from fvsolver.outputs.paths import output_file
+
+        atomic_write_text(output_file(args.json, overwrite=True, option="--json", example="checks.json"),
+                          json.dumps(result.as_dict(), indent=2, default=str))
     if failed:
         print(f"DIFFERS in {len(failed)} of {len(result.checks)} checks: {', '.join(failed)}",
               file=sys.stderr if args.quiet else sys.stdout)
@@ -201,8 +208,13 @@ class ProgressBar:
 def _check(args) -> int:
     from fvsolver.case import load_case
 
+    from fvsolver.case.limits import estimate
+    from fvsolver.case.setup_check import build_checked
+
     case = load_case(args.case)
-    _say(args, f"{args.case}: valid (schema {case['schema_version']}, sha256 {case.sha256[:12]})")
+    build_checked(case)  # what run sets up, check sets up: the mesh, the properties, the conditions
+    _say(args, f"{args.case}: valid (schema {case['schema_version']}, sha256 {case.sha256[:12]}; "
+               f"{estimate(case.data).describe()})")
     return EXIT_OK
 
 
@@ -211,8 +223,16 @@ def _mesh(args) -> int:
     from fvsolver.case.build import build_mesh
     from fvsolver.vtk_io import write_mesh
 
-    mesh = build_mesh(load_case(args.case))
-    args.out.parent.mkdir(parents=True, exist_ok=True)
+    from fvsolver.outputs.paths import output_file
+
+    output_file(args.out, args.overwrite, example="mesh.vtu")  # before the work, as run checks its --out
+    case = load_case(args.case)
+    try:
+        mesh = build_mesh(case)
+    except MeshError:
+        from fvsolver.case.setup_check import build_checked
+
+        mesh = build_checked(case).mesh  # raises the failure against the case file's line
     write_mesh(mesh, args.out)
     _say(args, f"wrote {args.out}: {mesh.n_cells} cells, patches {', '.join(mesh.patch_names)}")
     return EXIT_OK

@@ -12,8 +12,9 @@ from pathlib import Path
 import numpy as np
 
 from fvsolver import __version__
-from fvsolver.case.build import Setup, build
+from fvsolver.case.build import Setup
 from fvsolver.case.loader import Case, thaw
+from fvsolver.case.setup_check import build_checked
 from fvsolver.case.writer import dumps
 from fvsolver.conduction import heat_flux_vectors
 from fvsolver.errors import CaseError, SolverError
@@ -108,12 +109,25 @@ class FieldWriter:
         write_pvd(self.folder / "fields.pvd", self.entries)
 
 
+def _unfinished(folder: Path) -> bool:
+    """A run stopped before its end: no summary, or one that says interrupted."""
+    try:
+        return json.loads((folder / "summary.json").read_text()).get("status") == "interrupted"
+    except (OSError, ValueError, AttributeError):
+        return True
+
+
 def prepare_output(out: Path, overwrite: bool) -> Path:
+    from fvsolver.outputs.paths import output_folder
+
     out = Path(out)
-    if out.exists() and any(out.iterdir()) and not overwrite:
+    if out.is_dir() and any(out.iterdir()) and not overwrite:
+        if (out / "checkpoint.json").exists() and _unfinished(out):
+            raise CaseError(f"--out {out}: holds the checkpoint of an unfinished run; continue it with "
+                            f"--resume {out}, or start again with --overwrite")
         raise CaseError(f"--out {out}: the folder exists and is not empty (expected a new or empty folder); "
                         "choose another folder or pass --overwrite")
-    out.mkdir(parents=True, exist_ok=True)
+    output_folder(out)
     stale = out / "summary.json"
     if stale.exists():  # never leave an old summary that claims a result for this run
         stale.unlink()
@@ -139,6 +153,8 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
 
     from fvsolver import checkpoint
 
+    # set up first (as `check` does): a case that cannot be set up leaves no output folder behind
+    setup = build_checked(case)
     if resume:
         if out is None:
             raise CaseError("--resume: needs the output folder of the run to continue")
@@ -149,7 +165,6 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
             stale.unlink()
     else:
         folder = prepare_output(out, overwrite) if out is not None else None
-    setup = build(case)
     stepper = TimeStepper(setup.problem, setup.initial, 0.0, setup.end_time, setup.options,
                           stop_times=setup.field_times)
     monitor = None
