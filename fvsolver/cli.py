@@ -9,6 +9,7 @@ from pathlib import Path
 from fvsolver import __version__
 from fvsolver.errors import CaseError, FvsolverError, MeshError, SolverError
 from fvsolver.pipeline import EXIT_CASE, EXIT_INTERNAL, EXIT_INTERRUPTED, EXIT_OK, EXIT_SOLVER
+from fvsolver.safeguards import Terminated, stop_signals_as_interrupt
 
 EXIT_DIFFERS = 1  # compare: a difference beyond its tolerance (as diff does)
 
@@ -24,8 +25,8 @@ examples:
   fvsolver verify --out verification
 
 exit codes: 0 success (a target not reached is a result, not an error), 1 compare: differences
-beyond the tolerances, 2 bad case file or arguments, 3 solver failure, 4 internal error,
-130 interrupted
+beyond the tolerances, 2 bad case file or arguments, 3 solver failure or a non-physical state,
+4 internal error, 130 interrupted (Ctrl-C), 143 stopped by SIGTERM
 """
 
 
@@ -100,8 +101,9 @@ def _run(args) -> int:
     out = args.resume or args.out or Path("results") / args.case.stem
     bar = ProgressBar(case["time"]["end"]) if sys.stderr.isatty() and not args.quiet else None
     try:
-        result = run(case, out, overwrite=args.overwrite, argv=sys.argv, resume=args.resume is not None,
-                     progress=bar, checkpoint_every=args.checkpoint_every)
+        with stop_signals_as_interrupt() as stop:  # SIGTERM stops the run as Ctrl-C does
+            result = run(case, out, overwrite=args.overwrite, argv=sys.argv, resume=args.resume is not None,
+                         progress=bar, checkpoint_every=args.checkpoint_every)
     finally:
         if bar is not None:
             bar.close()
@@ -115,8 +117,8 @@ def _run(args) -> int:
             _say(args, f"  target {s['target_pressure_drop_pa']:.0f} Pa NOT reached: {s['stall_reason']}")
         _say(args, f"  largest internal pressure {s['max_internal_pressure_pa']:.0f} Pa, largest glass temperature "
                    f"{s['max_glass_temperature_k']:.2f} K")
-        for w in s["warnings"]:
-            _say(args, f"  WARNING: {w}")
+    for w in s["warnings"]:
+        _say(args, f"  WARNING: {w}")
     mass = ", ".join(f"{k} {v:.1e}" for k, v in s["mass_balance_relative_error"].items())
     _say(args, f"  temperature {s['min_temperature_k']:.3f} .. {s['max_temperature_k']:.3f} K; "
                f"energy balance error {s['energy_balance_relative_error']:.2e}" + (f"; mass {mass}" if mass else ""))
@@ -124,9 +126,12 @@ def _run(args) -> int:
         for key in ("n_rejected_steps", "n_newton_failures", "n_newton_iterations", "end_time_s"):
             _say(args, f"  {key}: {s[key]}")
         if s.get("room"):
-            _say(args, "  room: " + ", ".join(f"{k} {v:.4g}" for k, v in s["room"].items()))
+            _say(args, "  room: " + ", ".join(f"{k} {v:.4g}" if v is not None else f"{k} none"
+                                              for k, v in s["room"].items()))
     _say(args, f"  outputs in {out}")
-    return EXIT_INTERRUPTED if s["status"] == "interrupted" else EXIT_OK
+    if s["status"] == "interrupted":
+        return stop.exit_code or EXIT_INTERRUPTED
+    return EXIT_OK
 
 
 def _sweep(args) -> int:
@@ -260,9 +265,9 @@ def main(argv: list[str] | None = None) -> int:
     except SolverError as exc:
         print(f"solver failure: {exc}", file=sys.stderr)
         return EXIT_SOLVER
-    except KeyboardInterrupt:
+    except KeyboardInterrupt as exc:
         print("interrupted", file=sys.stderr)
-        return EXIT_INTERRUPTED
+        return 128 + exc.signum if isinstance(exc, Terminated) else EXIT_INTERRUPTED
     except FvsolverError as exc:
         print(f"error: {exc}", file=sys.stderr)
         return EXIT_CASE

@@ -70,3 +70,17 @@ def output_file(path: str | Path, overwrite: bool, option: str = "--out", exampl
     if not os.access(path.parent, os.W_OK):
         raise CaseError(f"{option} {_show(path)}: its folder is not writable; choose a folder you can write to")
     return path
+
+
+def clean_partial_files(folder: Path) -> list[Path]:
+    """Remove the temporary ``.NAME.*.part`` files an atomic write leaves when its process is
+    killed mid-write (never a finished output); returns what was removed."""
+    removed = []
+    for part in Path(folder).glob(".*.part"):
+        try:
+            if part.is_file():
+                part.unlink()
+                removed.append(part)
+        except OSError:  # another process's file, or gone already: not ours to insist on
+            pass
+    return removed
