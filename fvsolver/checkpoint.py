@@ -112,13 +112,22 @@ def _check_meta(meta, setup) -> None:
     _need(isinstance(meta["rows"], list) and meta["rows"] and all(isinstance(r, dict) for r in meta["rows"]),
           "rows is not a list of history rows")
     entries = meta["field_entries"]
-    _need(isinstance(entries, list) and all(
+    _need(isinstance(entries, list) and entries and all(
         isinstance(e, list) and len(e) == 2 and _real(e[0]) and isinstance(e[1], str) and FIELD_FILE.fullmatch(e[1])
         for e in entries), "a field entry is not (time, fields_NNNN.vtu) (paths may not leave the folder)")
     m = meta["monitor"]
     if setup is not None:
+        most = setup.options.max_step * (1 + 1e-12)  # no step of the run can be longer
+        _need(meta["dt"] <= most and meta["last_dt"] <= most, f"a step is longer than max_step {most:g} s")
+        _need(meta["t"] <= setup.end_time, f"t is after the end time {setup.end_time:g} s")
         _need((m is None) == (setup.device is None), "the monitor does not match the case")
-        _need(set(meta["inflow"]) == set(setup.problem.balance_groups()), "the balance groups do not match the case")
+        groups = set(setup.problem.balance_groups())
+        _need(set(meta["inflow"]) == groups, "the balance groups do not match the case")
+        stepped = isinstance(meta["counters"], dict) and meta["counters"].get("steps", 0) > 0
+        _need(meta["last_dt"] > 0.0 or not stepped, "last_dt is not a positive step")
+        for key in ("balance_error", "cumulative_inflow", "worst"):
+            _need(set(meta[key]) == groups if stepped else set(meta[key]) <= groups,
+                  f"{key} does not hold the case's balance groups")
     if m is not None:
         _need(isinstance(m, dict) and all(k in m for k in MONITOR_FIELDS) and isinstance(m.get("previous"), list)
               and len(m["previous"]) == 2, "the monitor's entries are incomplete")
@@ -140,8 +149,8 @@ def _check_arrays(arrays: dict, meta: dict, setup) -> None:
     _need(1 <= k <= 3 and arrays["history_t"].ndim == 1, "history_t does not hold 1 to 3 times")
     _need(arrays["history_y"].shape == (k, n) and arrays["history_m"].shape == (k, n),
           f"the stepper's history is not {k} states of {n} values")
-    _need(arrays["dts"].ndim == 1 and arrays["dts"].shape[0] <= 3 and np.all(arrays["dts"] > 0),
-          "dts is not up to 3 positive steps")
+    _need(arrays["dts"].ndim == 1 and k - 1 <= arrays["dts"].shape[0] <= 3 and np.all(arrays["dts"] > 0),
+          f"dts is not {k - 1} to 3 positive steps")
     _need(float(arrays["history_t"][0]) == meta["t"], "the arrays are from another step than checkpoint.json")
     for key in ("f0", "affine_rate"):
         if key in arrays:

@@ -154,7 +154,9 @@ def _sweep(args) -> int:
             result = f"target NOT reached: {row['stall_reason']}"
         _say(args, f"  [{index + 1}/{count}] {what}: {result} ({row['wall_time_s']:.1f} s)")
 
-    rows = sweep(case, varies, out, overwrite=args.overwrite, plots=args.plots, progress=progress, jobs=args.jobs)
+    with stop_signals_as_interrupt():  # SIGTERM stops the sweep (and its workers' runs) as Ctrl-C does
+        rows = sweep(case, varies, out, overwrite=args.overwrite, plots=args.plots, progress=progress,
+                     jobs=args.jobs)
     failed = sum(r["status"] == "failed" for r in rows)
     _say(args, f"{len(rows)} runs, {failed} failed; table in {out / 'sweep.csv'}")
     return EXIT_SOLVER if failed else EXIT_OK

@@ -15,11 +15,9 @@ import io
 import itertools
 import json
 import math
-import multiprocessing
 import os
 import time as wall
 import tomllib
-from concurrent.futures import ProcessPoolExecutor, as_completed
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -134,7 +132,9 @@ def _execute(variant: Case, run_dir: Path | None, overwrite: bool, plots: bool) 
     start = wall.perf_counter()
     try:
         return run(variant, run_dir, overwrite=overwrite, plots=plots).summary, None, wall.perf_counter() - start
-    except FvsolverError as exc:  # a solver failure, or a property asked outside its data
+    except (FvsolverError, MemoryError) as exc:  # a solver failure, a property outside its data, no memory
+        if isinstance(exc, MemoryError):
+            exc = f"out of memory ({exc or 'MemoryError'})"
         summary = {"status": "failed"}
         if run_dir is not None and (run_dir / "summary.json").exists():
             summary = json.loads((run_dir / "summary.json").read_text())
@@ -216,17 +216,12 @@ def sweep(case: Case, varies: list[Vary], out: str | Path | None = None, overwri
         for index, (_, variant) in enumerate(grid):
             record(index, _execute(variant, run_dir(index), overwrite, plots))
     else:
+        from fvsolver.workers import run_all
+
         base = (case.path, case.text, None if case.text else thaw(case.data))
-        with _one_blas_thread_per_worker(), ProcessPoolExecutor(
-                max_workers=min(jobs, len(grid)), mp_context=multiprocessing.get_context("spawn")) as pool:
-            pending = {pool.submit(_execute_in_worker, base, changes, run_dir(i), overwrite, plots): i
-                       for i, (changes, _) in enumerate(grid)}
-            try:
-                for future in as_completed(pending):
-                    record(pending[future], future.result())
-            except BaseException:
-                pool.shutdown(wait=False, cancel_futures=True)
-                raise
+        tasks = {i: (base, changes, run_dir(i), overwrite, plots) for i, (changes, _) in enumerate(grid)}
+        with _one_blas_thread_per_worker():  # workers die with the sweep; a dead worker is a failed row
+            run_all(_execute_in_worker, tasks, jobs, record, lambda i, what: ({"status": "failed"}, what, 0.0))
     rows = [done[i] for i in sorted(done)]
     if folder is not None:
         from fvsolver.outputs.sweep_report import write_sweep_report
