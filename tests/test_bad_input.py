@@ -181,3 +181,64 @@ def test_a_mesh_file_declaring_too_many_cells_is_refused_before_it_is_read(tmp_p
     text = re.sub(r"\[mesh\][^\[]*", "", text)
     err = refused(["check", case_file(tmp_path, text)])
     assert "geometry.file" in err and "3,000,000,000 cells" in err
+
+
+# ----------------------------------------------------------------------------- fuzzing the bytes and values
+from hypothesis import given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+
+CASE_FILES = {p.name: p.read_bytes() for p in sorted((ROOT / "cases").glob("*.toml"))}
+_NUMBER_LITERAL = re.compile(rb"(?<=[=\[, ])\s*-?\d+(\.\d+)?(e-?\d+)?(?=\s*($|[,\]#\n]))", re.M)
+EXTREMES = [b"0", b"-0.0", b"1e308", b"-1e308", b"1e-320", b"9223372036854775807", b"-9223372036854775808",
+            b"18446744073709551616", b"2147483648", b"1e30", b"nan", b"inf", b"-inf", b"1e1000", b'"5"', b"true",
+            b"[]", b"{}", b'"' + b"x" * 50_000 + b'"', b"[" * 3000 + b"]" * 3000, b'"a\\u0000b"']
+
+
+@st.composite
+def raw_mutants(draw) -> bytes:
+    """A shipped case file with damage of the kinds text editors, encodings and careless edits make:
+    foreign bytes (Latin-1, NUL, a BOM), cut files, extreme or mistyped values, duplicated lines."""
+    data = bytearray(CASE_FILES[draw(st.sampled_from(sorted(CASE_FILES)))])
+    for _ in range(draw(st.integers(1, 3))):
+        kind = draw(st.sampled_from(["bytes", "bom", "cut", "value", "duplicate line", "swap lines"]))
+        if kind == "bytes":
+            at = draw(st.integers(0, len(data)))
+            data[at:at] = draw(st.binary(min_size=1, max_size=4))
+        elif kind == "bom":
+            data[0:0] = draw(st.sampled_from([b"\xef\xbb\xbf", b"\xff\xfe", b"\xfe\xff"]))
+        elif kind == "cut":
+            del data[draw(st.integers(0, len(data))):]
+        elif kind == "value":
+            spots = list(_NUMBER_LITERAL.finditer(bytes(data)))
+            if spots:
+                m = draw(st.sampled_from(spots))
+                data[m.start(): m.end()] = b" " + draw(st.sampled_from(EXTREMES))
+        else:
+            lines = bytes(data).split(b"\n")
+            i, j = draw(st.integers(0, len(lines) - 1)), draw(st.integers(0, len(lines) - 1))
+            if kind == "duplicate line":
+                lines.insert(j, lines[i])
+            else:
+                lines[i], lines[j] = lines[j], lines[i]
+            data = bytearray(b"\n".join(lines))
+    return bytes(data)
+
+
+def check_bytes(path: Path, data: bytes) -> int:
+    """Exit code of ``fvsolver check`` on ``data``; fails on a traceback, exit 4 or a message without a place."""
+    path.write_bytes(data)
+    rc, out, err = run_cli(["check", path])
+    assert "Traceback" not in err + out and "internal error" not in err, err[-3000:]
+    assert rc in (0, 2), (rc, err[-3000:])
+    if rc == 2:
+        first = err.splitlines()[0]
+        assert first.startswith(f"error: {path}:"), first[:300]
+        assert all(len(line) < 2_000 for line in err.splitlines()), "a problem quotes too much"
+    return rc
+
+
+@settings(max_examples=60, deadline=None, database=None)
+@given(data=raw_mutants())
+def test_damaged_case_files_give_exit_0_or_2_with_a_place(data, tmp_path_factory):
+    """60 examples by default; tests/fuzz_cli.py runs thousands offline (counts by exit code)."""
+    check_bytes(tmp_path_factory.mktemp("raw") / "case.toml", data)
