@@ -26,7 +26,7 @@ def build_checked(case: Case) -> Setup:
         ...`` when a property or condition cannot be set up from the values given.
     """
     try:
-        return build(case)
+        setup = build(case)
     except MeshError as exc:
         raise CaseErrors([f"{_where(case, 'geometry')}: the mesh cannot be built from these dimensions "
                           f"({excerpt(str(exc), 300)[1:-1]}); check the lengths (m) and cell counts"]) from exc
@@ -37,3 +37,11 @@ def build_checked(case: Case) -> Setup:
         raise CaseErrors([f"{_where(case, 'case')}: the case cannot be set up "
                           f"({type(exc).__name__}: {excerpt(str(exc), 300)[1:-1]}); check the sizes and "
                           "property values for extreme numbers"]) from exc
+    try:  # the first evaluation, as the run's first output makes it: properties at the initial state
+        setup.problem.evaluate(setup.initial, 0.0)
+    except (PropertyError, ValueError, ArithmeticError) as exc:
+        raise CaseErrors([f"{_where(case, 'initial')}: the initial state cannot be evaluated "
+                          f"({type(exc).__name__}: {excerpt(str(exc), 300)[1:-1]}); check the initial "
+                          "temperature and the room against the properties' ranges"]) from exc
+    setup.conduction._surface_guess = None  # the run starts as it would without this look
+    return setup
