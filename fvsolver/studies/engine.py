@@ -71,8 +71,11 @@ class DaskEngine:
 
             config = {} if allowed_failures is None else {"distributed.scheduler.allowed-failures": allowed_failures}
             with dask.config.set(config):
+                # every listener on the loopback only: a local cluster serves this machine alone
+                where = {"host": "127.0.0.1"} if processes else {"worker_dashboard_address": "127.0.0.1:0"}
                 self.cluster = distributed.LocalCluster(n_workers=workers, threads_per_worker=1,
-                                                        processes=processes, dashboard_address=None)
+                                                        processes=processes, dashboard_address="127.0.0.1:0",
+                                                        **where)
             self.client = distributed.Client(self.cluster)
         self._keys: set[str] = set()
 
