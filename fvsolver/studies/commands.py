@@ -83,6 +83,17 @@ def add_commands(sub, epilog: str) -> None:
             s.add_argument("--result", default=None, metavar="KEY",
                            help="the summary result to map (default time_to_target_s)")
             add_engine_options(s)
+        if name == "converge":
+            s.add_argument("--levels", type=int, default=3, help="refinement levels per study, 3 or more (default 3)")
+            s.add_argument("--ratio", type=float, default=1.5,
+                           help="refinement ratio of every cell count per level (default 1.5; the tolerance "
+                                "falls by its square)")
+            s.add_argument("--study", action="append", choices=("both", "mesh", "time"), default=None,
+                           help="run only these studies (repeat; default all three)")
+            s.add_argument("--result", action="append", default=None, metavar="KEY",
+                           help="summary results to analyse (repeat; default time_to_target_s, period_s, "
+                                "min_temperature_k, max_temperature_k, where present)")
+            add_engine_options(s)
 
 
 def _envelope(args, say) -> int:
@@ -113,9 +124,32 @@ def _envelope(args, say) -> int:
     return EXIT_SOLVER if failed else EXIT_OK
 
 
+def _converge(args, say) -> int:
+    from fvsolver.case import load_case
+    from fvsolver.studies.converge import QUANTITIES, STUDIES, converge, table
+    from fvsolver.studies.engine import LocalEngine
+
+    case = load_case(args.case)
+    out = args.out or Path("results") / f"{args.case.stem}_converge"
+
+    def progress(done, count, name, row):
+        what = "complete" if row["status"] == "complete" else f"{row['status']}: {row['reason']}"
+        say(f"  [{done}/{count} done] {name} ({row['n_cells']} cells, tolerance {row['tolerance']:.3g} K): "
+            f"{what} ({row['wall_time_s']:.1f} s)")
+
+    with open_engine(args) as engine:
+        runs, results = converge(case, out, levels=args.levels, ratio=args.ratio,
+                                 studies=tuple(args.study or STUDIES), quantities=tuple(args.result or QUANTITIES),
+                                 overwrite=args.overwrite, engine=engine or LocalEngine(args.jobs), progress=progress)
+    say(table(results))
+    failed = sum(r["status"] != "complete" for r in runs)
+    say(f"{len(runs)} runs, {failed} failed; report in {out / 'converge.md'}")
+    return EXIT_SOLVER if failed else EXIT_OK
+
+
 def handlers(say_for) -> dict:
     """The command name -> handler(args) map; ``say_for(args)`` gives the print function."""
     def wrap(function):
         return lambda args: function(args, say_for(args))
-    return {"envelope": wrap(_envelope)}
+    return {"envelope": wrap(_envelope), "converge": wrap(_converge)}
 

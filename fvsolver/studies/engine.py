@@ -133,3 +133,62 @@ class DaskEngine:
             raise
         finally:
             self._keys.difference_update(f.key for f in futures)
+
+
+class LocalEngine:
+    """The same ``map`` on this machine: one call after the other (``jobs = 1``) or ``jobs``
+    worker processes with one BLAS thread each (as ``fvsolver sweep --jobs``)."""
+
+    def __init__(self, jobs: int = 1):
+        if not (isinstance(jobs, int) and 1 <= jobs <= 256):
+            raise CaseError(f"--jobs: got {jobs!r}, expected a whole number of runs at a time from 1 to 256")
+        self.jobs = jobs
+        self._running = 0
+
+    def __enter__(self) -> LocalEngine:
+        return self
+
+    def __exit__(self, *exc) -> None:
+        pass
+
+    @property
+    def description(self) -> str:
+        return f"this machine ({self.jobs} worker processes)" if self.jobs > 1 else "this machine, one run after the other"
+
+    def running(self) -> int:
+        return self._running
+
+    def map(self, function: Callable, calls: Sequence[tuple], on_result: Callable[[int, Any], None],
+            on_failure: Callable[[int, BaseException], Any]) -> None:
+        """As :meth:`DaskEngine.map`; a call that raises gives ``on_failure``'s result."""
+        if self.jobs == 1 or len(calls) == 1:
+            for i, args in enumerate(calls):
+                self._running = 1
+                try:
+                    result = function(*args)
+                except Exception as exc:  # noqa: BLE001 - a crash of one run: a failed run
+                    result = on_failure(i, exc)
+                self._running = 0
+                on_result(i, result)
+            return
+        import multiprocessing
+        from concurrent.futures import ProcessPoolExecutor, as_completed
+
+        from fvsolver.sweeps import _one_blas_thread_per_worker
+
+        with _one_blas_thread_per_worker(), ProcessPoolExecutor(
+                max_workers=min(self.jobs, len(calls)), mp_context=multiprocessing.get_context("spawn")) as pool:
+            pending = {pool.submit(function, *args): i for i, args in enumerate(calls)}
+            left = len(pending)
+            try:
+                for future in as_completed(pending):
+                    left -= 1
+                    self._running = min(self.jobs, left)
+                    try:
+                        result = future.result()
+                    except Exception as exc:  # noqa: BLE001 - a crash or a lost worker: a failed run
+                        result = on_failure(pending[future], exc)
+                    on_result(pending[future], result)
+            except BaseException:
+                pool.shutdown(wait=False, cancel_futures=True)
+                raise
