@@ -10,6 +10,9 @@ from fvsolver import __version__
 from fvsolver.errors import CaseError, FvsolverError, MeshError, SolverError
 from fvsolver.pipeline import EXIT_CASE, EXIT_INTERNAL, EXIT_INTERRUPTED, EXIT_OK, EXIT_SOLVER
 from fvsolver.safeguards import Terminated, stop_signals_as_interrupt
+from fvsolver.studies.commands import add_commands as add_study_commands
+from fvsolver.studies.commands import add_engine_options, open_engine
+from fvsolver.studies.commands import handlers as study_handlers
 
 EXIT_DIFFERS = 1  # compare: a difference beyond its tolerance (as diff does)
 
@@ -62,8 +65,7 @@ def _parser() -> argparse.ArgumentParser:
             s.add_argument("--out", type=Path, default=None, help="output folder (default: results/<case name>_sweep)")
             s.add_argument("--overwrite", action="store_true", help="write into a non-empty output folder")
             s.add_argument("--plots", action="store_true", help="also draw every run's own plots and report")
-            s.add_argument("--jobs", type=int, default=1, metavar="N",
-                           help="runs at a time, in worker processes (default 1; up to the number of cores)")
+            add_engine_options(s)  # --jobs N, or --workers N / --scheduler ADDRESS (Dask)
         if name == "compare":
             s.add_argument("new", type=Path, help="output folder of the run to check")
             s.add_argument("baseline", type=Path, help="output folder of the baseline run")
@@ -82,6 +84,7 @@ def _parser() -> argparse.ArgumentParser:
             s.add_argument("--out", type=Path, default=Path("verification"), help="folder for the report")
             s.add_argument("--slow", action="store_true", help="add the finest refinement levels")
             s.add_argument("--case", action="append", default=None, help="run only cases whose name contains this")
+    add_study_commands(sub, EPILOG)  # envelope, converge, fit
     return p
 
 
@@ -152,9 +155,12 @@ def _sweep(args) -> int:
             result = f"target reached at t = {row['time_to_target_s']:.2f} s"
         else:
             result = f"target NOT reached: {row['stall_reason']}"
-        _say(args, f"  [{index + 1}/{count}] {what}: {result} ({row['wall_time_s']:.1f} s)")
+        running = f", {engine.running()} running" if engine is not None else ""
+        _say(args, f"  [{index + 1}/{count}{running}] {what}: {result} ({row['wall_time_s']:.1f} s)")
 
-    rows = sweep(case, varies, out, overwrite=args.overwrite, plots=args.plots, progress=progress, jobs=args.jobs)
+    with open_engine(args) as engine:
+        rows = sweep(case, varies, out, overwrite=args.overwrite, plots=args.plots, progress=progress,
+                     jobs=args.jobs, engine=engine)
     failed = sum(r["status"] == "failed" for r in rows)
     _say(args, f"{len(rows)} runs, {failed} failed; table in {out / 'sweep.csv'}")
     return EXIT_SOLVER if failed else EXIT_OK
@@ -256,7 +262,7 @@ def _verify(args) -> int:
 def main(argv: list[str] | None = None) -> int:
     args = _parser().parse_args(argv)
     handler = {"run": _run, "sweep": _sweep, "compare": _compare, "check": _check, "mesh": _mesh,
-               "verify": _verify}[args.command]
+               "verify": _verify, **study_handlers(lambda a: lambda text: _say(a, text))}[args.command]
     try:
         return handler(args)
     except (CaseError, MeshError) as exc:
