@@ -102,9 +102,14 @@ class FieldWriter:
             faces["evaporative_mass_flux"] = evap
             faces["condensation_mass_flux"] = cond
         name = f"fields_{len(self.entries):04d}.vtu"
-        write_fields(self.folder / name, mesh, cell, faces)
+        # the boundary faces go to their own files and collection, so that they never stretch
+        # the colour range of a cell field in ParaView
+        boundary = f"boundary_{len(self.entries):04d}.vtu"
+        write_fields(self.folder / name, mesh, cell, faces, boundary_path=self.folder / boundary)
         self.entries.append((t, name))
         self.fields.append((t, T.copy()))
+        write_pvd(self.folder / "boundary.pvd", [(time, f"boundary_{k:04d}.vtu") for k, (time, _) in
+                                                 enumerate(self.entries)])
         write_pvd(self.folder / "fields.pvd", self.entries)
 
 
@@ -188,7 +193,12 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
     finished = (monitor is not None and monitor.time_to_target is not None
                 and setup.device.target.stop_when_reached)
     try:
-        while not finished and stepper.step():
+        # step() returns False after the step that lands on the end time: that step is still
+        # processed (history row, target crossing, safety figures) before the loop ends
+        while not finished and stepper.status == "running":
+            stepper.step()
+            if stepper.status == "failed":
+                break
             for g, err in stepper.balance_error.items():
                 worst[g] = max(worst.get(g, 0.0), float(err))
             reached = monitor.after_step(stepper) if monitor is not None else False
