@@ -229,9 +229,10 @@ def _check_device(data: dict, v, patches, start: int) -> bool:
     if fluid_table["condensing_patches"] == list(DEFAULT_CONDENSING_PATCHES):
         # the default names the device head's walls; a two-layer shell has no bore
         fluid_table["condensing_patches"] = [p for p in DEFAULT_CONDENSING_PATCHES if p in patches]
-    inner = [p for p in patches if p not in outer and p != "axis"]
+    dry = outer + ("axis", "neck_end")
+    inner = [p for p in patches if p not in dry]
     for p in fluid_table["condensing_patches"]:
-        if p not in patches or p in outer or p == "axis":
+        if p not in patches or p in dry:
             what = "an outer or axis patch, where no vapour is" if p in patches else "no such patch"
             v.error("fluid.condensing_patches", f"got {p!r} ({what}), expected patches of the vapour space "
                     f"(one of {', '.join(inner)})")
