@@ -9,6 +9,8 @@ from __future__ import annotations
 import csv
 import json
 import math
+import shutil
+import subprocess
 import xml.etree.ElementTree as ET
 from pathlib import Path
 
@@ -249,3 +251,25 @@ def test_history_has_one_row_per_accepted_step(demo):
     assert summary["target_reached"] is True  # the demo lifts its column (recorded result)
     assert drops[-1] >= summary["target_pressure_drop_pa"]
     assert max(drops) == pytest.approx(summary["max_pressure_drop_pa"], rel=1e-9)
+
+
+@pytest.mark.skipif(shutil.which("pvpython") is None, reason="ParaView (pvpython) is not installed")
+def test_paraview_reads_the_collections(demo):
+    """ParaView's own PVD reader (pvpython): both collections load as time series, the cell fields'
+    automatic ranges are the body's values only, and the name tables are text."""
+    _, mesh, out, summary = demo
+    script = Path(__file__).with_name("paraview_read.py")
+    done = subprocess.run(["pvpython", str(script), str(out)], capture_output=True, text=True, timeout=300)
+    assert done.returncode == 0, done.stderr
+    seen = json.loads(done.stdout.strip().splitlines()[-1])
+    fields, faces = seen["fields"], seen["boundary"]
+    assert fields["times"] == faces["times"] and fields["times"][-1] == pytest.approx(summary["end_time_s"])
+    assert fields["n_cells"] == mesh.n_cells and faces["n_cells"] == mesh.n_boundary
+    assert fields["ranges"]["temperature"] == pytest.approx([summary["min_temperature_k"],
+                                                             summary["max_temperature_k"]], rel=1e-12)
+    assert "surface_temperature" not in fields["ranges"] and "temperature" not in faces["ranges"]
+    low, high = faces["ranges"]["surface_temperature"]
+    assert 250.0 < low <= high < 320.0
+    assert fields["names"]["material_names"] == list(mesh.material_names)
+    assert faces["names"]["patch_names"] == list(mesh.patch_names)
+    assert fields["names"]["coordinate_system"] == ["axisymmetric"]
