@@ -22,6 +22,7 @@ examples:
   fvsolver check cases/glass_bulb_cooling.toml
   fvsolver mesh cases/glass_bulb_cooling.toml --out meshes/head.vtu
   fvsolver verify --out verification
+  fvsolver revolve results/demo --angle 270            (3D cells of the fields, for ParaView)
 
 exit codes: 0 success (a target not reached is a result, not an error), 1 compare: differences
 beyond the tolerances, 2 bad case file or arguments, 3 solver failure, 4 internal error,
@@ -39,7 +40,8 @@ def _parser() -> argparse.ArgumentParser:
                        ("sweep", "run a case over a grid of changed keys; one table row per run"),
                        ("compare", "compare a run's outputs with a baseline run's, within tolerances"),
                        ("check", "validate a case file only"),
-                       ("mesh", "write the case's mesh as VTU"), ("verify", "run the verification cases")):
+                       ("mesh", "write the case's mesh as VTU"), ("verify", "run the verification cases"),
+                       ("revolve", "revolve a run's fields about the axis into 3D cells for ParaView")):
         s = sub.add_parser(name, help=text, description=text, epilog=EPILOG,
                            formatter_class=argparse.RawDescriptionHelpFormatter)
         g = s.add_mutually_exclusive_group()
@@ -76,6 +78,11 @@ def _parser() -> argparse.ArgumentParser:
             s.add_argument("--json", type=Path, default=None, help="also write the checks to this JSON file")
         if name == "mesh":
             s.add_argument("--out", type=Path, required=True, help="the VTU file to write")
+        if name == "revolve":
+            s.add_argument("folder", type=Path, help="output folder of a run (holding fields.pvd)")
+            s.add_argument("--sectors", type=int, default=36, help="angular steps (default 36)")
+            s.add_argument("--angle", type=float, default=270.0, metavar="DEG",
+                           help="swept angle in degrees (default 270: a cut-away to see inside; 360: whole)")
         if name == "verify":
             s.add_argument("--out", type=Path, default=Path("verification"), help="folder for the report")
             s.add_argument("--slow", action="store_true", help="add the finest refinement levels")
@@ -228,10 +235,19 @@ def _verify(args) -> int:
     return EXIT_OK if all(c.passed for r in reports for c in r.checks) else EXIT_SOLVER
 
 
+def _revolve(args) -> int:
+    from fvsolver.revolve import revolve_run
+
+    entries = revolve_run(args.folder, args.sectors, args.angle)
+    _say(args, f"wrote {args.folder / 'revolved.pvd'}: {len(entries)} times, {args.sectors} sectors over "
+               f"{args.angle:g} deg")
+    return EXIT_OK
+
+
 def main(argv: list[str] | None = None) -> int:
     args = _parser().parse_args(argv)
     handler = {"run": _run, "sweep": _sweep, "compare": _compare, "check": _check, "mesh": _mesh,
-               "verify": _verify}[args.command]
+               "verify": _verify, "revolve": _revolve}[args.command]
     try:
         return handler(args)
     except (CaseError, MeshError) as exc:

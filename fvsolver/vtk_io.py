@@ -443,3 +443,54 @@ def read_cell_field(path, name: str) -> np.ndarray:
             values = np.asarray(values, dtype=float)
             return values[:, 0] if values.ndim == 2 and values.shape[1] == 1 else values
     raise MeshError(f"{path}: no quadrilateral cells; expected a fields file written by fvsolver")
+
+
+def read_fields(path) -> tuple[np.ndarray, np.ndarray, dict, dict]:
+    """The quads and cell fields of a VTU written by :func:`write_fields`.
+
+    Returns
+    -------
+    nodes : (n_nodes, 2) m
+    quads : (n_cells, 4) node indices
+    cell_data : dict of str to (n_cells,) or (n_cells, k) arrays
+    field_data : dict (the name tables as tuples of str)
+    """
+    path = os.fspath(path)
+    try:
+        raw, field_data = _read_vtu(path)
+    except Exception as exc:  # meshio and the XML parser raise several unrelated types on bad input
+        raise MeshError(f"{path}: cannot be read as a VTU file ({type(exc).__name__}: {exc}); "
+                        "expected a fields file written by fvsolver") from exc
+    for k, block in enumerate(raw.cells):
+        if block.type == "quad":
+            data = {name: np.asarray(values[k]) for name, values in raw.cell_data.items()}
+            return np.asarray(raw.points)[:, :2], np.asarray(block.data, dtype=np.int64), data, field_data
+    raise MeshError(f"{path}: no quadrilateral cells; expected a fields file written by fvsolver")
+
+
+def write_cells(path, points: np.ndarray, cells: dict, cell_data: dict, names: dict | None = None) -> None:
+    """Write any cells (e.g. a revolved 3D mesh) as VTU, atomically.
+
+    Parameters
+    ----------
+    points : (n_points, 3)
+    cells : dict of meshio cell type ("hexahedron", "wedge", ...) to connectivity arrays
+    cell_data : dict of cell type to dict of str to arrays, one row per cell
+    names : dict of str to tuple of str, written as VTK string arrays in the field data
+    """
+    types = list(cells)
+    keys = list(dict.fromkeys(k for t in types for k in cell_data.get(t, {})))
+    arrays = {k: [cell_data[t][k] for t in types] for k in keys if all(k in cell_data.get(t, {}) for t in types)}
+    raw = meshio.Mesh(np.asarray(points, dtype=float), [(t, cells[t]) for t in types], cell_data=arrays)
+
+    def write(tmp: str) -> None:
+        meshio.write(tmp, raw, file_format="vtu")
+        if names:
+            tree = ET.parse(tmp)
+            block = ET.Element("FieldData")
+            for name, values in names.items():
+                _string_array(block, name, _check_names(values, name))
+            tree.getroot().find("UnstructuredGrid").insert(0, block)
+            tree.write(tmp, encoding="utf-8", xml_declaration=True)
+
+    _atomic(os.fspath(path), write)
