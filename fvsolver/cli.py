@@ -111,11 +111,18 @@ def _run(args) -> int:
     s = result.summary
     _say(args, f"{s['title'] or args.case.stem}: {s['status']} at t = {s['end_time_s']:.6g} s "
                f"({s['n_steps']} steps, {s['n_cells']} cells)")
-    if s["target_reached"] is not None:
+    if s.get("target_pressure_drop_pa") is not None:
         if s["target_reached"]:
             _say(args, f"  target {s['target_pressure_drop_pa']:.0f} Pa reached at t = {s['time_to_target_s']:.2f} s")
-        else:
+        elif s["target_reached"] is False:
             _say(args, f"  target {s['target_pressure_drop_pa']:.0f} Pa NOT reached: {s['stall_reason']}")
+        else:
+            _say(args, f"  target {s['target_pressure_drop_pa']:.0f} Pa not reached before the run stopped "
+                       f"({s['status']}; largest difference {s['max_pressure_drop_pa']:.0f} Pa)")
+        if s.get("field_times_not_reached_s"):
+            _say(args, f"  the run stopped at t = {s['end_time_s']:.6g} s: field times " + ", ".join(
+                f"{t:g}" for t in s["field_times_not_reached_s"]) + " s were not reached"
+                + (" (a field was written at the target crossing)" if s["target_reached"] else ""))
         _say(args, f"  largest internal pressure {s['max_internal_pressure_pa']:.0f} Pa, largest glass temperature "
                    f"{s['max_glass_temperature_k']:.2f} K")
         for w in s["warnings"]:
