@@ -143,9 +143,12 @@ def _target_reached(summary: Mapping) -> bool | None:
 def _format_balance(value: float) -> str:
     """A relative balance error in plain words: its size, and whether it is round-off."""
     if value == 0.0:
-        return "exactly 0"
-    text = f"{value:.1e}" if value < 1e-3 else f"{100 * value:.2g} %"
-    return text + (" (round-off)" if value < 1e-8 else "")
+        return "exactly"
+    if value < 1e-8:  # never "6.4e-09 %": a percentage that small says round-off less plainly
+        return f"at round-off ({value:.1e})"
+    if value < 1e-6:
+        return "to within 0.0001 %"
+    return f"to within {100 * value:.2g} %"
 
 
 def _balance_sentence(name: str, value) -> str | None:
@@ -157,14 +160,13 @@ def _balance_sentence(name: str, value) -> str | None:
             return None
         worst = max(v for _, v in parts)
         text = ", ".join(f"{k.replace('_', ' ')} {_format_balance(v)}" for k, v in parts)
-        sentence = f"Largest {name} balance errors, relative to the amounts exchanged: {text}."
+        sentence = f"The {name} balances closed: {text} (relative to the amounts exchanged)."
     else:
         worst = _number(value)
         if worst is None:
             return None
         worst = abs(worst)
-        sentence = (f"Largest {name} balance error, relative to the energy exchanged: {_format_balance(worst)}."
-                    if name == "energy" else f"Largest {name} balance error (relative): {_format_balance(worst)}.")
+        sentence = f"The {name} balance closed {_format_balance(worst)} (relative error)."
     if worst > BALANCE_ALERT:
         sentence += (
             f" That is more than {_format_fraction(BALANCE_ALERT)}: treat the results with "
@@ -422,7 +424,8 @@ def write_report(
         lines += ["## Numerical uncertainty", "", uncertainty, ""]
     lines += ["## Inputs", "", *_inputs_table(inputs or {}), ""]
     lines += ["## Plots", "", *_plot_links(folder, plots or []), ""]
-    device = summary.get("target_pressure_drop_pa") is not None or "room" in summary
+    device = (summary.get("target_pressure_drop_pa") is not None or "room" in summary
+              or bool(summary.get("warnings")))
     if device:
         lines += ["## Safety figures", "", *_safety_figures(summary), ""]
         lines += ["## Cautions", "", CAUTIONS]
