@@ -56,6 +56,9 @@ def _parser() -> argparse.ArgumentParser:
                            help="continue the killed or interrupted run whose outputs are in DIR")
             s.add_argument("--checkpoint-every", type=float, default=30.0, metavar="SECONDS",
                            help="wall-clock seconds between checkpoints (default 30; 0: every step)")
+            s.add_argument("--no-uncertainty", dest="uncertainty", action="store_false",
+                           help="skip the two cheaper companion runs that estimate the numerical "
+                                "uncertainty of the time to target")
         if name == "sweep":
             s.add_argument("--vary", action="append", default=[], metavar="KEY.PATH=VALUES", required=True,
                            help="a key and its values: V1,V2,... (TOML values) or START:STOP:N; repeat "
@@ -104,7 +107,8 @@ def _run(args) -> int:
     bar = ProgressBar(case["time"]["end"]) if sys.stderr.isatty() and not args.quiet else None
     try:
         result = run(case, out, overwrite=args.overwrite, argv=sys.argv, resume=args.resume is not None,
-                     progress=bar, checkpoint_every=args.checkpoint_every)
+                     progress=bar, checkpoint_every=args.checkpoint_every,
+                     uncertainty=args.uncertainty and args.resume is None)
     finally:
         if bar is not None:
             bar.close()
@@ -119,6 +123,11 @@ def _run(args) -> int:
         else:
             _say(args, f"  target {s['target_pressure_drop_pa']:.0f} Pa not reached before the run stopped "
                        f"({s['status']}; largest difference {s['max_pressure_drop_pa']:.0f} Pa)")
+        u = s.get("numerical_uncertainty") or {}
+        if "total_relative" in u:
+            _say(args, "  numerical uncertainty of the time to target: " + ", ".join(
+                f"{k.replace('_', ' ')} ±{v['estimate_s']:.2g} s" for k, v in u.items() if isinstance(v, dict)
+                and "estimate_s" in v) + f" (together ±{100 * u['total_relative']:.2g} %)")
         if s.get("field_times_not_reached_s"):
             _say(args, f"  the run stopped at t = {s['end_time_s']:.6g} s: field times " + ", ".join(
                 f"{t:g}" for t in s["field_times_not_reached_s"]) + " s were not reached"

@@ -135,7 +135,7 @@ def prepare_output(out: Path, overwrite: bool) -> Path:
 
 def run(case: Case, out: str | Path | None = None, overwrite: bool = False, progress=None,
         argv: list[str] | None = None, resume: bool = False, checkpoint_every: float = 30.0,
-        plots: bool = True) -> Result:
+        plots: bool = True, uncertainty: bool = False) -> Result:
     """Run ``case``; write outputs into ``out`` when given.
 
     Parameters
@@ -147,6 +147,8 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
     resume : continue the run checkpointed in ``out`` (the case must be unchanged)
     checkpoint_every : wall-clock seconds between checkpoints (0: after every step)
     plots : draw the PNG plots and write report.md (a sweep leaves them out by default)
+    uncertainty : estimate the numerical uncertainty of the time to target from two cheaper
+        companion runs (:mod:`fvsolver.outputs.uncertainty`) and report it
     """
     import time as wall
 
@@ -243,6 +245,10 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
         status, reason = "interrupted", f"stopped by the user at t = {stepper.t:.6g} s (continue with --resume)"
         save_checkpoint()
     summary = _summary(case, setup, stepper, monitor, worst, status, reason)
+    if uncertainty and monitor is not None:
+        from fvsolver.outputs.uncertainty import estimate
+
+        summary["numerical_uncertainty"] = estimate(case, summary)
     history = {k: np.array([r.get(k, np.nan) for r in rows]) for k in rows[-1]}
     if folder is not None:
         _write_csv(folder / "history.csv", rows)
