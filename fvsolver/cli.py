@@ -23,6 +23,8 @@ examples:
   fvsolver mesh cases/glass_bulb_cooling.toml --out meshes/head.vtu
   fvsolver verify --out verification
   fvsolver revolve results/demo --angle 270            (3D cells of the fields, for ParaView)
+  fvsolver keys room                                   (case keys with unit, default, range)
+  fvsolver new my_head.toml                            (a commented starter case)
 
 exit codes: 0 success (a target not reached is a result, not an error), 1 compare: differences
 beyond the tolerances, 2 bad case file or arguments, 3 solver failure, 4 internal error,
@@ -41,7 +43,9 @@ def _parser() -> argparse.ArgumentParser:
                        ("compare", "compare a run's outputs with a baseline run's, within tolerances"),
                        ("check", "validate a case file only"),
                        ("mesh", "write the case's mesh as VTU"), ("verify", "run the verification cases"),
-                       ("revolve", "revolve a run's fields about the axis into 3D cells for ParaView")):
+                       ("revolve", "revolve a run's fields about the axis into 3D cells for ParaView"),
+                       ("keys", "list every case-file key with its unit, default and range"),
+                       ("new", "write a commented starter case file")):
         s = sub.add_parser(name, help=text, description=text, epilog=EPILOG,
                            formatter_class=argparse.RawDescriptionHelpFormatter)
         g = s.add_mutually_exclusive_group()
@@ -81,6 +85,10 @@ def _parser() -> argparse.ArgumentParser:
             s.add_argument("--json", type=Path, default=None, help="also write the checks to this JSON file")
         if name == "mesh":
             s.add_argument("--out", type=Path, required=True, help="the VTU file to write")
+        if name == "keys":
+            s.add_argument("prefix", nargs="?", default=None, help="only keys starting with this (e.g. room)")
+        if name == "new":
+            s.add_argument("file", type=Path, help="the case file to write (refused if it exists)")
         if name == "revolve":
             s.add_argument("folder", type=Path, help="output folder of a run (holding fields.pvd)")
             s.add_argument("--sectors", type=int, default=36, help="angular steps (default 36)")
@@ -104,6 +112,8 @@ def _run(args) -> int:
 
     case = load_case(args.case)
     out = args.resume or args.out or Path("results") / args.case.stem
+    if args.resume is None and not args.overwrite:
+        out = _fresh_folder(args, out)
     bar = ProgressBar(case["time"]["end"]) if sys.stderr.isatty() and not args.quiet else None
     try:
         result = run(case, out, overwrite=args.overwrite, argv=sys.argv, resume=args.resume is not None,
@@ -195,10 +205,25 @@ def _compare(args) -> int:
     return EXIT_OK
 
 
-class ProgressBar:
-    """One line on the terminal: simulated time, step, pressure difference against the target."""
+def _fresh_folder(args, out: Path) -> Path:
+    """A folder that holds an earlier run (its run_info.json) is kept: the new run goes to the
+    first free ``NAME-2``, ``NAME-3`` ... beside it, and the user is told.  Any other non-empty
+    folder is refused later, as before."""
+    if not (out.is_dir() and (out / "run_info.json").is_file()):
+        return out
+    k = 2
+    while (fresh := out.with_name(f"{out.name}-{k}")).exists():
+        k += 1
+    print(f"note: {out} holds an earlier run, kept as it is; writing to {fresh} "
+          "(pass --overwrite to replace the earlier run)", file=sys.stderr)
+    return fresh
 
-    def __init__(self, end_time: float, width: int = 28):
+
+class ProgressBar:
+    """One line on the terminal: simulated time against the end time, step, and for a device the
+    pressure difference against the target, each with a bar."""
+
+    def __init__(self, end_time: float, width: int = 20):
         import time
 
         self.end, self.width, self.clock, self.last = end_time, width, time.monotonic, 0.0
@@ -208,14 +233,20 @@ class ProgressBar:
         if now - self.last < 0.2:
             return
         self.last = now
-        done = min(1.0, stepper.t / self.end)
-        bar = "#" * int(done * self.width) + "." * (self.width - int(done * self.width))
-        text = f"\r[{bar}] t = {stepper.t:9.3f} s  dt = {stepper.last_dt:8.3g} s"
+        text = f"\r{self.bar(stepper.t / self.end)} time {stepper.t:9.3f} s  dt = {stepper.last_dt:8.3g} s"
         if monitor is not None:
+            # a run that stops at its target ends long before time.end: show that progress too
             p = monitor.problem.pressures(stepper.y)["pressure_drop_pa"]
-            text += f"  dp = {p:8.1f} / {monitor.target(stepper.y):.1f} Pa"
+            target = monitor.target(stepper.y)
+            text += f"  {self.bar(p / target if target > 0 else 0.0, self.width // 2)} dp {p:7.1f} / {target:.1f} Pa"
         sys.stderr.write(text)
         sys.stderr.flush()
+
+    def bar(self, fraction: float, width: int | None = None) -> str:
+        """``[#####.....]`` filled to ``fraction`` (clipped to 0..1)."""
+        width = width or self.width
+        filled = int(min(1.0, max(0.0, fraction)) * width)
+        return "[" + "#" * filled + "." * (width - filled) + "]"
 
     def close(self) -> None:
         sys.stderr.write("\n")
@@ -260,10 +291,33 @@ def _revolve(args) -> int:
     return EXIT_OK
 
 
+def _keys(args) -> int:
+    import shutil
+
+    from fvsolver.case.docs import keys_table
+
+    print(keys_table(shutil.get_terminal_size((100, 24)).columns, args.prefix))
+    return EXIT_OK
+
+
+def _new(args) -> int:
+    from fvsolver.case.docs import starter_case
+    from fvsolver.outputs.files import atomic_write_text
+
+    if args.file.exists():
+        raise CaseError(f"new {args.file}: the file exists (expected a new file name); choose another name")
+    args.file.parent.mkdir(parents=True, exist_ok=True)
+    atomic_write_text(args.file, starter_case())
+    _say(args, f"wrote {args.file}: edit it, check it with `fvsolver check {args.file}`, run it with "
+               f"`fvsolver run {args.file}`")
+    return EXIT_OK
+
+
 def main(argv: list[str] | None = None) -> int:
     args = _parser().parse_args(argv)
     handler = {"run": _run, "sweep": _sweep, "compare": _compare, "check": _check, "mesh": _mesh,
-               "verify": _verify, "revolve": _revolve}[args.command]
+               "verify": _verify, "revolve": _revolve,
+               "keys": _keys, "new": _new}[args.command]
     try:
         return handler(args)
     except (CaseError, MeshError) as exc:
