@@ -46,7 +46,13 @@ class Result:
     setup: Setup = field(repr=False)
 
 
-def _history_row(setup: Setup, stepper: TimeStepper, monitor) -> dict:
+def _history_row(setup: Setup, stepper: TimeStepper, monitor, evaluation=None) -> dict:
+    """One row of history.csv; ``evaluation`` gives the rates of the initial state (before any
+    step the stepper has none), so that the first row shows the t = 0 rates, not zeros."""
+    from types import SimpleNamespace
+
+    from fvsolver.outputs.columns import device_columns
+
     mesh = setup.mesh
     T = stepper.y[: mesh.n_cells]
     row = {"time_s": stepper.t, "step_s": stepper.last_dt, "min_temperature_k": float(T.min()),
@@ -54,10 +60,12 @@ def _history_row(setup: Setup, stepper: TimeStepper, monitor) -> dict:
     for i, name in enumerate(mesh.material_names):
         sel = mesh.cell_material == i
         row[f"mean_{name}_temperature_k"] = float(np.average(T[sel], weights=mesh.cell_volumes[sel]))
-    ev = stepper.last_evaluation
+    ev = stepper.last_evaluation if evaluation is None else evaluation
     row["heat_in_w"] = float(ev.heat_in) if ev is not None else 0.0
     if monitor is not None:
-        row.update(monitor.history_columns(stepper))
+        view = stepper if evaluation is None else SimpleNamespace(y=stepper.y, t=stepper.t, last_evaluation=ev)
+        row.update(monitor.history_columns(view))
+        row.update(device_columns(setup.problem, ev))
     for group, err in stepper.balance_error.items():
         row[f"{group}_balance_error"] = float(err)
     return row
@@ -105,9 +113,14 @@ class FieldWriter:
             faces["evaporative_mass_flux"] = evap
             faces["condensation_mass_flux"] = cond
         name = f"fields_{len(self.entries):04d}.vtu"
-        write_fields(self.folder / name, mesh, cell, faces)
+        # the boundary faces go to their own files and collection, so that they never stretch
+        # the colour range of a cell field in ParaView
+        boundary = f"boundary_{len(self.entries):04d}.vtu"
+        write_fields(self.folder / name, mesh, cell, faces, boundary_path=self.folder / boundary)
         self.entries.append((t, name))
         self.fields.append((t, T.copy()))
+        write_pvd(self.folder / "boundary.pvd", [(time, f"boundary_{k:04d}.vtu") for k, (time, _) in
+                                                 enumerate(self.entries)])
         write_pvd(self.folder / "fields.pvd", self.entries)
 
 
@@ -139,7 +152,7 @@ def prepare_output(out: Path, overwrite: bool) -> Path:
 
 def run(case: Case, out: str | Path | None = None, overwrite: bool = False, progress=None,
         argv: list[str] | None = None, resume: bool = False, checkpoint_every: float = 30.0,
-        plots: bool = True) -> Result:
+        plots: bool = True, uncertainty: bool = False) -> Result:
     """Run ``case``; write outputs into ``out`` when given.
 
     Parameters
@@ -151,6 +164,8 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
     resume : continue the run checkpointed in ``out`` (the case must be unchanged)
     checkpoint_every : wall-clock seconds between checkpoints (0: after every step)
     plots : draw the PNG plots and write report.md (a sweep leaves them out by default)
+    uncertainty : estimate the numerical uncertainty of the time to target from two cheaper
+        companion runs (:mod:`fvsolver.outputs.uncertainty`) and report it
     """
     import time as wall
 
@@ -194,9 +209,10 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
         watch.restore(meta.get("watch"))
         fields.entries = [tuple(e) for e in meta["field_entries"]]
     else:
+        initial = setup.problem.evaluate(setup.initial, 0.0)
         if fields is not None:
-            fields.write(0.0, setup.initial, setup.problem.evaluate(setup.initial, 0.0))
-        rows = [_history_row(setup, stepper, monitor)]
+            fields.write(0.0, setup.initial, initial)
+        rows = [_history_row(setup, stepper, monitor, initial)]
         worst: dict[str, float] = {}
     status, reason = "complete", None
     last_checkpoint = None  # the first step is checkpointed: any killed run can be resumed
@@ -212,7 +228,12 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
     finished = (monitor is not None and monitor.time_to_target is not None
                 and setup.device.target.stop_when_reached)
     try:
-        while not finished and stepper.step():
+        # step() returns False after the step that lands on the end time: that step is still
+        # processed (history row, target crossing, safety figures) before the loop ends
+        while not finished and stepper.status == "running":
+            stepper.step()
+            if stepper.status == "failed":
+                break
             bad = watch.check(stepper.y, stepper.t) or _step_limit(stepper, max_steps)
             if bad is not None:
                 break
@@ -220,6 +241,9 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
             for g, err in stepper.balance_error.items():
                 worst[g] = max(worst.get(g, 0.0), float(err))
             reached = monitor.after_step(stepper) if monitor is not None else False
+            if reached and fields is not None and monitor.time_to_target < stepper.t:
+                # the field at the crossing itself, from the step's interpolant
+                fields.write(monitor.time_to_target, stepper.dense(monitor.time_to_target), None)
             for when, mass, temperature in rewettings:
                 if stepper.t == when:
                     stepper.reset(monitor.rewet(stepper.y, mass, temperature))
@@ -257,6 +281,10 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
         save_checkpoint()
     summary = _summary(case, setup, stepper, monitor, worst, status, reason)
     summary["warnings"] += watch.warnings()
+    if uncertainty and monitor is not None:
+        from fvsolver.outputs.uncertainty import estimate
+
+        summary["numerical_uncertainty"] = estimate(case, summary)
     history = {k: np.array([r.get(k, np.nan) for r in rows]) for k in rows[-1]}
     if folder is not None:
         _write_csv(folder / "history.csv", rows)
@@ -300,8 +328,12 @@ def _summary(case, setup, stepper, monitor, worst, status, reason) -> dict:
     }
     if monitor is not None:
         reached = monitor.time_to_target is not None
+        skipped = [float(t) for t in setup.field_times if stepper.t < t < setup.end_time]
         summary.update({
-            "target_reached": reached, "time_to_target_s": monitor.time_to_target,
+            # a run stopped early (interrupted, failed) has not decided whether the target is reachable
+            "target_reached": True if reached else (False if status == "complete" else None),
+            "time_to_target_s": monitor.time_to_target,
+            "field_times_not_reached_s": skipped,
             "target_pressure_drop_pa": monitor.target(stepper.y), "max_pressure_drop_pa": monitor.max_pressure_drop,
             "stall_reason": None if reached or status != "complete" else monitor.stall_reason(stepper.y, stepper.t),
             "max_internal_pressure_pa": monitor.max_absolute_pressure,
@@ -315,23 +347,42 @@ def _summary(case, setup, stepper, monitor, worst, status, reason) -> dict:
     return summary
 
 
+def _chosen_fields(fields, summary, most: int = 8) -> list:
+    """The fields to draw: every one written, but not a uniform initial field (it says nothing the
+    title does not); at most ``most``, always with the crossing and the last."""
+    chosen = list(fields.fields)
+    if len(chosen) > 1 and np.ptp(chosen[0][1]) < 1e-9 * max(1.0, float(np.abs(chosen[0][1]).max())):
+        chosen = chosen[1:]
+    if len(chosen) > most:
+        keep = set(np.linspace(0, len(chosen) - 1, most).astype(int))
+        crossing = summary.get("time_to_target_s")
+        keep |= {i for i, (t, _) in enumerate(chosen) if t == crossing}
+        chosen = [f for i, f in enumerate(chosen) if i in keep]
+    return chosen
+
+
 def _write_plots_and_report(folder: Path, case, setup, summary, history, fields) -> None:
     from fvsolver.outputs.report import write_report
+    from fvsolver.outputs.scenario import scenario_text
     from fvsolver.plotting import history_plot, temperature_field_plot
 
     plots = []
+    scenario = scenario_text(case, summary.get("target_pressure_drop_pa"))
     if fields is not None and fields.fields:
-        chosen = fields.fields if len(fields.fields) <= 4 else [fields.fields[i] for i in
-                                                                 np.linspace(0, len(fields.fields) - 1, 4).astype(int)]
+        chosen = _chosen_fields(fields, summary)
+        notes = ["target reached" if t == summary.get("time_to_target_s") else
+                 ("end" if t == summary["end_time_s"] else "") for t, _ in chosen]
         temperature_field_plot(setup.mesh, [T for _, T in chosen], folder / "temperature_field.png",
-                               times=[t for t, _ in chosen], title=plain_title(case["title"]))
+                               times=[t for t, _ in chosen], title=plain_title(case["title"]), subtitle=scenario,
+                               notes=notes)
         plots.append("temperature_field.png")
     if "pressure_drop_pa" in history:
         history_plot(history, folder / "history.png", summary["target_pressure_drop_pa"],
-                     summary["time_to_target_s"], title=plain_title(case["title"]))
+                     summary["time_to_target_s"], title=plain_title(case["title"]), subtitle=scenario,
+                     max_pressure_drop_pa=summary.get("max_pressure_drop_pa"))
         plots.append("history.png")
     write_report(folder, summary, plain_title(case["title"] or (case.path.stem if case.path else "case")),
-                 _inputs(case), plots)
+                 _inputs(case), plots, scenario=scenario)
 
 
 def _inputs(case) -> dict:

@@ -179,6 +179,9 @@ def check_consistency(data: dict, v) -> None:
             v.error(key, message)
 
 
+DEFAULT_CONDENSING_PATCHES = ("inner_wall", "bore")
+
+
 def device_patches(data: dict, patches) -> tuple:
     """Patches the device model sets: the cap, the vapour-space walls, the bare outer glass."""
     fixed = ("cap_outer", "cap_edge", "glass_outer", "neck_outer")
@@ -239,11 +242,18 @@ def _check_device(data: dict, v, patches, start: int) -> bool:
     for i, w in enumerate(water["rewettings"]):
         if not 0.0 < w["time"] < end:
             v.error(f"cap_water.rewettings[{i}].time", f"got {w['time']!r}, expected a time in (0, {end!r}) s")
-    for p in data["fluid"]["condensing_patches"]:
-        if p not in patches:
-            v.error("fluid.condensing_patches", f"got {p!r}, expected patches of the vapour space "
-                    f"(one of {', '.join(patches)})")
     outer = ("cap_outer", "cap_edge", "glass_outer", "neck_outer")
+    fluid_table = data["fluid"]
+    if fluid_table["condensing_patches"] == list(DEFAULT_CONDENSING_PATCHES):
+        # the default names the device head's walls; a two-layer shell has no bore
+        fluid_table["condensing_patches"] = [p for p in DEFAULT_CONDENSING_PATCHES if p in patches]
+    dry = outer + ("axis", "neck_end")
+    inner = [p for p in patches if p not in dry]
+    for p in fluid_table["condensing_patches"]:
+        if p not in patches or p in dry:
+            what = "an outer or axis patch, where no vapour is" if p in patches else "no such patch"
+            v.error("fluid.condensing_patches", f"got {p!r} ({what}), expected patches of the vapour space "
+                    f"(one of {', '.join(inner)})")
     for i, hs in enumerate(data["heat_sources"]):
         if hs["patch"] not in outer or hs["patch"] not in patches:
             v.error(f"heat_sources[{i}].patch", f"got {hs['patch']!r}, expected an outer patch of the head "
