@@ -281,15 +281,22 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
         save_checkpoint()
     summary = _summary(case, setup, stepper, monitor, worst, status, reason)
     summary["warnings"] += watch.warnings()
-    if uncertainty and monitor is not None:
-        from fvsolver.outputs.uncertainty import estimate
-
-        summary["numerical_uncertainty"] = estimate(case, summary)
     history = {k: np.array([r.get(k, np.nan) for r in rows]) for k in rows[-1]}
     if folder is not None:
         _write_csv(folder / "history.csv", rows)
-        # the summary first: the computed result is kept whatever the drawing does
+        # the summary first: the computed result is kept whatever the extras below do
         atomic_write_text(folder / "summary.json", json.dumps(summary, indent=2))
+    if uncertainty and monitor is not None and status == "complete":  # a stopped run exits now
+        from fvsolver.outputs.uncertainty import estimate
+
+        try:
+            summary["numerical_uncertainty"] = estimate(case, summary)
+        except (Exception, KeyboardInterrupt) as exc:  # the companion runs only add to the result
+            summary["warnings"].append(f"the numerical uncertainty was not estimated ({type(exc).__name__}: "
+                                       f"{str(exc)[:200]})")
+        if folder is not None:
+            atomic_write_text(folder / "summary.json", json.dumps(summary, indent=2))
+    if folder is not None:
         if plots:
             try:
                 _write_plots_and_report(folder, case, setup, summary, history, fields)

@@ -431,8 +431,8 @@ def read_cell_field(path, name: str) -> np.ndarray:
     """
     path = os.fspath(path)
     try:
-        raw = meshio.vtu.read(path)
-    except Exception as exc:  # meshio raises several unrelated types on bad input
+        raw, _ = _read_vtu(path)  # the name tables are string arrays, which meshio alone cannot read
+    except Exception as exc:  # meshio and the XML parser raise several unrelated types on bad input
         raise MeshError(f"{path}: cannot be read as a VTU file ({type(exc).__name__}: {exc}); "
                         "expected a fields file written by fvsolver") from exc
     if name not in raw.cell_data:

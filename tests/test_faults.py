@@ -40,12 +40,22 @@ class StopAfter:
             raise KeyboardInterrupt
 
 
+def fast(folder: Path, name: str) -> Path:
+    """A shipped case with the demo's earlier, coarser settings (4 cap cells, tolerance 0.02 K):
+    the same physics in fewer steps, for tests of the machinery rather than the numbers."""
+    text = (ROOT / "cases" / name).read_text().replace("cap_cells = 8", "cap_cells = 4").replace(
+        "tolerance = 0.001", "tolerance = 0.02")
+    path = folder / name
+    path.write_text(text)
+    return path
+
+
 # ----------------------------------------------------------------------------- resume, bit for bit
 @pytest.mark.parametrize("name, stop", [("demo.toml", 7), ("glass_bulb_cooling.toml", 17)])
 def test_a_resumed_run_takes_the_same_steps_bit_for_bit(tmp_path, name, stop):
     """The device demo (a refactorised Jacobian with a kept ordering) and the conduction case (an
     affine problem with a carried rate) each resume to the identical step sequence and state."""
-    case = fvsolver.load_case(ROOT / "cases" / name)
+    case = fvsolver.load_case(fast(tmp_path, name))
     whole = run(case, tmp_path / "whole", plots=False)
     out = tmp_path / "parts"
     assert run(case, out, progress=StopAfter(stop), plots=False).summary["status"] == "interrupted"
@@ -128,8 +138,9 @@ def test_sigterm_stops_a_run_as_ctrl_c_does(tmp_path):
 @pytest.fixture(scope="module")
 def checkpointed(tmp_path_factory):
     """An interrupted device run's folder and its case."""
-    case = fvsolver.load_case(ROOT / "cases" / "demo.toml")
-    out = tmp_path_factory.mktemp("ckpt") / "o"
+    folder = tmp_path_factory.mktemp("ckpt")
+    case = fvsolver.load_case(fast(folder, "demo.toml"))
+    out = folder / "o"
     run(case, out, progress=StopAfter(4), plots=False)
     return case, out
 
@@ -237,7 +248,7 @@ def test_resume_with_a_zero_step_ends_in_exit_2_not_a_hang(checkpointed, tmp_pat
     folder = tmp_path / "o"
     shutil.copytree(source, folder)
     tamper(folder, "dt", 0.0, resign=True)
-    assert main(["run", str(ROOT / "cases" / "demo.toml"), "--resume", str(folder), "-q"]) == 2
+    assert main(["run", str(case.path), "--resume", str(folder), "-q"]) == 2
 
 
 # ----------------------------------------------------------------------------- sweeps
@@ -282,17 +293,12 @@ def test_killing_a_sweep_leaves_no_orphan_workers(tmp_path):
             os.kill(p, signal.SIGKILL)
 
 
-def _dies_on_two(x: int) -> tuple:
-    if x == 2:
-        os._exit(9)  # as the system's out-of-memory killer would end it
-    return ({"status": "complete"}, None, float(x))
-
-
 def test_a_worker_that_dies_becomes_a_failed_row_and_the_rest_finish():
     from fvsolver.workers import run_all
+    from tests.worker_helpers import dies_on_two
 
     rows = {}
-    run_all(_dies_on_two, {i: (i,) for i in range(5)}, 2, rows.__setitem__,
+    run_all(dies_on_two, {i: (i,) for i in range(5)}, 2, rows.__setitem__,
             lambda i, what: ({"status": "failed"}, what, 0.0))
     assert sorted(rows) == [0, 1, 2, 3, 4]
     assert rows[2][0]["status"] == "failed" and "worker process died" in rows[2][1]
