@@ -111,6 +111,7 @@ def _run(args) -> int:
     from fvsolver.pipeline import run
 
     case = load_case(args.case)
+    _input_warnings(case)
     out = args.resume or args.out or Path("results") / args.case.stem
     if args.resume is None and not args.overwrite:
         out = _fresh_folder(args, out)
@@ -205,6 +206,14 @@ def _compare(args) -> int:
     return EXIT_OK
 
 
+def _input_warnings(case) -> None:
+    """Valid but implausible inputs (a unit slip, most often), on stderr before anything runs."""
+    from fvsolver.case.units import implausible
+
+    for text in implausible(case.data):
+        print(f"warning: {text}", file=sys.stderr)
+
+
 def _fresh_folder(args, out: Path) -> Path:
     """A folder that holds an earlier run (its run_info.json) is kept: the new run goes to the
     first free ``NAME-2``, ``NAME-3`` ... beside it, and the user is told.  Any other non-empty
@@ -256,6 +265,7 @@ def _check(args) -> int:
     from fvsolver.case import load_case
 
     case = load_case(args.case)
+    _input_warnings(case)
     _say(args, f"{args.case}: valid (schema {case['schema_version']}, sha256 {case.sha256[:12]})")
     return EXIT_OK
 
