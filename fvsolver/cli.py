@@ -16,7 +16,7 @@ EPILOG = """\
 examples:
   fvsolver run cases/demo.toml --out results/demo
   fvsolver run cases/demo.toml --resume results/demo     (continue a killed run)
-  fvsolver sweep cases/demo.toml --vary room.relative_humidity=0.3:0.8:6 \
+  fvsolver sweep cases/demo.toml --vary "room.relative_humidity=linspace(0.3,0.8,6)" \
                  --vary room.air_temperature=293.15,298.15 --out results/humidity
   fvsolver compare results/demo baselines/demo          (a regression check against a kept run)
   fvsolver check cases/glass_bulb_cooling.toml
@@ -65,7 +65,7 @@ def _parser() -> argparse.ArgumentParser:
                                 "uncertainty of the time to target")
         if name == "sweep":
             s.add_argument("--vary", action="append", default=[], metavar="KEY.PATH=VALUES", required=True,
-                           help="a key and its values: V1,V2,... (TOML values) or START:STOP:N; repeat "
+                           help="a key and its values: V1,V2,... (TOML values) or linspace(START,STOP,N); repeat "
                                 "for a grid (the first key varies slowest)")
             s.add_argument("--out", type=Path, default=None, help="output folder (default: results/<case name>_sweep)")
             s.add_argument("--overwrite", action="store_true", help="write into a non-empty output folder")
