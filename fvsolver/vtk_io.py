@@ -431,7 +431,7 @@ def read_cell_field(path, name: str) -> np.ndarray:
     """
     path = os.fspath(path)
     try:
-        raw = meshio.vtu.read(path)
+        raw, _ = _read_vtu(path)
     except Exception as exc:  # meshio raises several unrelated types on bad input
         raise MeshError(f"{path}: cannot be read as a VTU file ({type(exc).__name__}: {exc}); "
                         "expected a fields file written by fvsolver") from exc
