@@ -9,6 +9,10 @@ from pathlib import Path
 from fvsolver import __version__
 from fvsolver.errors import CaseError, FvsolverError, MeshError, SolverError
 from fvsolver.pipeline import EXIT_CASE, EXIT_INTERNAL, EXIT_INTERRUPTED, EXIT_OK, EXIT_SOLVER
+from fvsolver.safeguards import Terminated, stop_signals_as_interrupt
+from fvsolver.studies.commands import add_commands as add_study_commands
+from fvsolver.studies.commands import add_engine_options, open_engine
+from fvsolver.studies.commands import handlers as study_handlers
 
 EXIT_DIFFERS = 1  # compare: a difference beyond its tolerance (as diff does)
 
@@ -27,8 +31,8 @@ examples:
   fvsolver new my_head.toml                            (a commented starter case)
 
 exit codes: 0 success (a target not reached is a result, not an error), 1 compare: differences
-beyond the tolerances, 2 bad case file or arguments, 3 solver failure, 4 internal error,
-130 interrupted
+beyond the tolerances, 2 bad case file or arguments, 3 solver failure or a non-physical state,
+4 internal error, 130 interrupted (Ctrl-C), 143 stopped by SIGTERM
 """
 
 
@@ -70,8 +74,7 @@ def _parser() -> argparse.ArgumentParser:
             s.add_argument("--out", type=Path, default=None, help="output folder (default: results/<case name>_sweep)")
             s.add_argument("--overwrite", action="store_true", help="write into a non-empty output folder")
             s.add_argument("--plots", action="store_true", help="also draw every run's own plots and report")
-            s.add_argument("--jobs", type=int, default=1, metavar="N",
-                           help="runs at a time, in worker processes (default 1; up to the number of cores)")
+            add_engine_options(s)  # --jobs N, or --workers N / --scheduler ADDRESS (Dask)
         if name == "compare":
             s.add_argument("new", type=Path, help="output folder of the run to check")
             s.add_argument("baseline", type=Path, help="output folder of the baseline run")
@@ -85,6 +88,7 @@ def _parser() -> argparse.ArgumentParser:
             s.add_argument("--json", type=Path, default=None, help="also write the checks to this JSON file")
         if name == "mesh":
             s.add_argument("--out", type=Path, required=True, help="the VTU file to write")
+            s.add_argument("--overwrite", action="store_true", help="replace an existing file")
         if name == "keys":
             s.add_argument("prefix", nargs="?", default=None, help="only keys starting with this (e.g. room)")
         if name == "new":
@@ -98,6 +102,7 @@ def _parser() -> argparse.ArgumentParser:
             s.add_argument("--out", type=Path, default=Path("verification"), help="folder for the report")
             s.add_argument("--slow", action="store_true", help="add the finest refinement levels")
             s.add_argument("--case", action="append", default=None, help="run only cases whose name contains this")
+    add_study_commands(sub, EPILOG)  # envelope, converge, fit
     return p
 
 
@@ -110,6 +115,9 @@ def _run(args) -> int:
     from fvsolver.case import load_case
     from fvsolver.pipeline import run
 
+    if args.resume is not None and args.out is not None and args.out.resolve() != args.resume.resolve():
+        raise CaseError(f"--resume {args.resume} --out {args.out}: a resumed run continues in its own folder; "
+                        "leave out --out (or copy the folder first and resume the copy)")
     case = load_case(args.case)
     _input_warnings(case)
     out = args.resume or args.out or Path("results") / args.case.stem
@@ -117,9 +125,10 @@ def _run(args) -> int:
         out = _fresh_folder(args, out)
     bar = ProgressBar(case["time"]["end"]) if sys.stderr.isatty() and not args.quiet else None
     try:
-        result = run(case, out, overwrite=args.overwrite, argv=sys.argv, resume=args.resume is not None,
-                     progress=bar, checkpoint_every=args.checkpoint_every,
-                     uncertainty=args.uncertainty and args.resume is None)
+        with stop_signals_as_interrupt() as stop:  # SIGTERM stops the run as Ctrl-C does
+            result = run(case, out, overwrite=args.overwrite, argv=sys.argv, resume=args.resume is not None,
+                         progress=bar, checkpoint_every=args.checkpoint_every,
+                         uncertainty=args.uncertainty and args.resume is None)
     finally:
         if bar is not None:
             bar.close()
@@ -145,8 +154,8 @@ def _run(args) -> int:
                 + (" (a field was written at the target crossing)" if s["target_reached"] else ""))
         _say(args, f"  largest internal pressure {s['max_internal_pressure_pa']:.0f} Pa, largest glass temperature "
                    f"{s['max_glass_temperature_k']:.2f} K")
-        for w in s["warnings"]:
-            _say(args, f"  WARNING: {w}")
+    for w in s["warnings"]:
+        _say(args, f"  WARNING: {w}")
     mass = ", ".join(f"{k} {v:.1e}" for k, v in s["mass_balance_relative_error"].items())
     _say(args, f"  temperature {s['min_temperature_k']:.3f} .. {s['max_temperature_k']:.3f} K; "
                f"energy balance error {s['energy_balance_relative_error']:.2e}" + (f"; mass {mass}" if mass else ""))
@@ -154,9 +163,12 @@ def _run(args) -> int:
         for key in ("n_rejected_steps", "n_newton_failures", "n_newton_iterations", "end_time_s"):
             _say(args, f"  {key}: {s[key]}")
         if s.get("room"):
-            _say(args, "  room: " + ", ".join(f"{k} {v:.4g}" for k, v in s["room"].items()))
+            _say(args, "  room: " + ", ".join(f"{k} {v:.4g}" if v is not None else f"{k} none"
+                                              for k, v in s["room"].items()))
     _say(args, f"  outputs in {out}")
-    return EXIT_INTERRUPTED if s["status"] == "interrupted" else EXIT_OK
+    if s["status"] == "interrupted":
+        return stop.exit_code or EXIT_INTERRUPTED
+    return EXIT_OK
 
 
 def _sweep(args) -> int:
@@ -177,9 +189,12 @@ def _sweep(args) -> int:
             result = f"target reached at t = {row['time_to_target_s']:.2f} s"
         else:
             result = f"target NOT reached: {row['stall_reason']}"
-        _say(args, f"  [{index + 1}/{count}] {what}: {result} ({row['wall_time_s']:.1f} s)")
+        running = f", {engine.running()} running" if engine is not None else ""
+        _say(args, f"  [{index + 1}/{count}{running}] {what}: {result} ({row['wall_time_s']:.1f} s)")
 
-    rows = sweep(case, varies, out, overwrite=args.overwrite, plots=args.plots, progress=progress, jobs=args.jobs)
+    with open_engine(args) as engine:
+        rows = sweep(case, varies, out, overwrite=args.overwrite, plots=args.plots, progress=progress,
+                     jobs=args.jobs, engine=engine)
     failed = sum(r["status"] == "failed" for r in rows)
     _say(args, f"{len(rows)} runs, {failed} failed; table in {out / 'sweep.csv'}")
     return EXIT_SOLVER if failed else EXIT_OK
@@ -197,7 +212,10 @@ def _compare(args) -> int:
     _say(args, result.table())
     failed = [c.quantity for c in result.checks if c.passed is False]
     if args.json is not None:
-        atomic_write_text(args.json, json.dumps(result.as_dict(), indent=2, default=str))
+        from fvsolver.outputs.paths import output_file
+
+        atomic_write_text(output_file(args.json, overwrite=True, option="--json", example="checks.json"),
+                          json.dumps(result.as_dict(), indent=2, default=str))
     if failed:
         print(f"DIFFERS in {len(failed)} of {len(result.checks)} checks: {', '.join(failed)}",
               file=sys.stderr if args.quiet else sys.stdout)
@@ -264,9 +282,14 @@ class ProgressBar:
 def _check(args) -> int:
     from fvsolver.case import load_case
 
+    from fvsolver.case.limits import estimate
+    from fvsolver.case.setup_check import build_checked
+
     case = load_case(args.case)
     _input_warnings(case)
-    _say(args, f"{args.case}: valid (schema {case['schema_version']}, sha256 {case.sha256[:12]})")
+    build_checked(case)  # what run sets up, check sets up: the mesh, the properties, the conditions
+    _say(args, f"{args.case}: valid (schema {case['schema_version']}, sha256 {case.sha256[:12]}; "
+               f"{estimate(case.data).describe()})")
     return EXIT_OK
 
 
@@ -275,8 +298,16 @@ def _mesh(args) -> int:
     from fvsolver.case.build import build_mesh
     from fvsolver.vtk_io import write_mesh
 
-    mesh = build_mesh(load_case(args.case))
-    args.out.parent.mkdir(parents=True, exist_ok=True)
+    from fvsolver.outputs.paths import output_file
+
+    output_file(args.out, args.overwrite, example="mesh.vtu")  # before the work, as run checks its --out
+    case = load_case(args.case)
+    try:
+        mesh = build_mesh(case)
+    except MeshError:
+        from fvsolver.case.setup_check import build_checked
+
+        mesh = build_checked(case).mesh  # raises the failure against the case file's line
     write_mesh(mesh, args.out)
     _say(args, f"wrote {args.out}: {mesh.n_cells} cells, patches {', '.join(mesh.patch_names)}")
     return EXIT_OK
@@ -326,8 +357,8 @@ def _new(args) -> int:
 def main(argv: list[str] | None = None) -> int:
     args = _parser().parse_args(argv)
     handler = {"run": _run, "sweep": _sweep, "compare": _compare, "check": _check, "mesh": _mesh,
-               "verify": _verify, "revolve": _revolve,
-               "keys": _keys, "new": _new}[args.command]
+               "verify": _verify, "revolve": _revolve, "keys": _keys, "new": _new,
+               **study_handlers(lambda a: lambda text: _say(a, text))}[args.command]
     try:
         return handler(args)
     except (CaseError, MeshError) as exc:
@@ -336,9 +367,9 @@ def main(argv: list[str] | None = None) -> int:
     except SolverError as exc:
         print(f"solver failure: {exc}", file=sys.stderr)
         return EXIT_SOLVER
-    except KeyboardInterrupt:
+    except KeyboardInterrupt as exc:
         print("interrupted", file=sys.stderr)
-        return EXIT_INTERRUPTED
+        return 128 + exc.signum if isinstance(exc, Terminated) else EXIT_INTERRUPTED
     except FvsolverError as exc:
         print(f"error: {exc}", file=sys.stderr)
         return EXIT_CASE

@@ -12,12 +12,15 @@ from pathlib import Path
 import numpy as np
 
 from fvsolver import __version__
-from fvsolver.case.build import Setup, build
+from fvsolver.case.build import Setup
 from fvsolver.case.loader import Case, thaw
+from fvsolver.case.setup_check import build_checked
 from fvsolver.case.writer import dumps
 from fvsolver.conduction import heat_flux_vectors
 from fvsolver.errors import CaseError, SolverError
 from fvsolver.outputs.files import atomic_write_text
+from fvsolver.outputs.paths import clean_partial_files
+from fvsolver.safeguards import StateWatch, plain_title
 from fvsolver.stepper import TimeStepper
 
 EXIT_OK, EXIT_CASE, EXIT_SOLVER, EXIT_INTERNAL, EXIT_INTERRUPTED = 0, 2, 3, 4, 130
@@ -121,12 +124,26 @@ class FieldWriter:
         write_pvd(self.folder / "fields.pvd", self.entries)
 
 
+def _unfinished(folder: Path) -> bool:
+    """A run stopped before its end: no summary, or one that says interrupted."""
+    try:
+        return json.loads((folder / "summary.json").read_text()).get("status") == "interrupted"
+    except (OSError, ValueError, AttributeError):
+        return True
+
+
 def prepare_output(out: Path, overwrite: bool) -> Path:
+    from fvsolver.outputs.paths import output_folder
+
     out = Path(out)
-    if out.exists() and any(out.iterdir()) and not overwrite:
+    if out.is_dir() and any(out.iterdir()) and not overwrite:
+        if (out / "checkpoint.json").exists() and _unfinished(out):
+            raise CaseError(f"--out {out}: holds the checkpoint of an unfinished run; continue it with "
+                            f"--resume {out}, or start again with --overwrite")
         raise CaseError(f"--out {out}: the folder exists and is not empty (expected a new or empty folder); "
                         "choose another folder or pass --overwrite")
-    out.mkdir(parents=True, exist_ok=True)
+    output_folder(out)
+    clean_partial_files(out)
     stale = out / "summary.json"
     if stale.exists():  # never leave an old summary that claims a result for this run
         stale.unlink()
@@ -154,17 +171,19 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
 
     from fvsolver import checkpoint
 
+    # set up first (as `check` does): a case that cannot be set up leaves no output folder behind
+    setup = build_checked(case)
     if resume:
         if out is None:
             raise CaseError("--resume: needs the output folder of the run to continue")
         folder = Path(out)
-        meta, arrays = checkpoint.load(folder, case.sha256)
+        meta, arrays = checkpoint.load(folder, case.sha256, setup)
+        clean_partial_files(folder)
         stale = folder / "summary.json"
         if stale.exists():
             stale.unlink()
     else:
         folder = prepare_output(out, overwrite) if out is not None else None
-    setup = build(case)
     stepper = TimeStepper(setup.problem, setup.initial, 0.0, setup.end_time, setup.options,
                           stop_times=setup.field_times)
     monitor = None
@@ -183,9 +202,11 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
                 "command_line": argv or sys.argv, "packages": _versions()}
         atomic_write_text(folder / "run_info.json", json.dumps(info, indent=2))
     fields = FieldWriter(folder, setup) if folder is not None else None
+    watch = StateWatch(setup)  # non-physical states stop the run; out-of-range properties warn
     if resume:
         checkpoint.restore(stepper, monitor, meta, arrays)
         rows, worst = meta["rows"], meta["worst"]
+        watch.restore(meta.get("watch"))
         fields.entries = [tuple(e) for e in meta["field_entries"]]
     else:
         initial = setup.problem.evaluate(setup.initial, 0.0)
@@ -194,11 +215,14 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
         rows = [_history_row(setup, stepper, monitor, initial)]
         worst: dict[str, float] = {}
     status, reason = "complete", None
-    last_checkpoint = wall.monotonic()
+    last_checkpoint = None  # the first step is checkpointed: any killed run can be resumed
+    max_steps = case["numerics"]["max_steps"]
+    last_good, bad = (stepper.t, stepper.y.copy()), None
 
     def save_checkpoint():
         if folder is not None:
-            checkpoint.save(folder, stepper, monitor, rows, fields.entries, case.sha256, worst)
+            checkpoint.save(folder, stepper, monitor, rows, fields.entries, case.sha256, worst,
+                            extra={"watch": watch.state()})
 
     # a run killed after its target but before its summary has nothing left to step
     finished = (monitor is not None and monitor.time_to_target is not None
@@ -210,6 +234,10 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
             stepper.step()
             if stepper.status == "failed":
                 break
+            bad = watch.check(stepper.y, stepper.t) or _step_limit(stepper, max_steps)
+            if bad is not None:
+                break
+            last_good = (stepper.t, stepper.y.copy())
             for g, err in stepper.balance_error.items():
                 worst[g] = max(worst.get(g, 0.0), float(err))
             reached = monitor.after_step(stepper) if monitor is not None else False
@@ -223,14 +251,20 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
             if fields is not None and np.any(np.isclose(stepper.t, setup.field_times, rtol=0, atol=1e-12)):
                 fields.write(stepper.t, stepper.y, stepper.last_evaluation)
                 _write_csv(folder / "history.csv", rows)
-            if folder is not None and wall.monotonic() - last_checkpoint >= checkpoint_every:
+            if folder is not None and (last_checkpoint is None or wall.monotonic() - last_checkpoint >= checkpoint_every):
                 save_checkpoint()
                 last_checkpoint = wall.monotonic()
             if progress is not None:
                 progress(stepper, monitor)
             if reached and setup.device.target.stop_when_reached:
                 break
-        if stepper.status == "failed":
+        if bad is None and stepper.status == "finished":
+            bad = watch.check(stepper.y, stepper.t)
+        if bad is not None:
+            status, reason = "failed", bad
+            if fields is not None and (not fields.entries or fields.entries[-1][0] < last_good[0]):
+                fields.write(*last_good, None)  # the last good state, for a look at what went wrong
+        elif stepper.status == "failed":
             status, reason = "failed", stepper.message
             save_checkpoint()
             if fields is not None and (not fields.entries or fields.entries[-1][0] < stepper.t):
@@ -241,10 +275,12 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
                 worst[g] = max(worst.get(g, 0.0), float(err))
             if fields is not None and (not fields.entries or fields.entries[-1][0] != stepper.t):
                 fields.write(stepper.t, stepper.y, stepper.last_evaluation)
-    except KeyboardInterrupt:
-        status, reason = "interrupted", f"stopped by the user at t = {stepper.t:.6g} s (continue with --resume)"
+    except KeyboardInterrupt as exc:  # Ctrl-C, or SIGTERM (safeguards.Terminated)
+        status = "interrupted"
+        reason = f"{getattr(exc, 'reason', 'stopped by the user')} at t = {stepper.t:.6g} s (continue with --resume)"
         save_checkpoint()
     summary = _summary(case, setup, stepper, monitor, worst, status, reason)
+    summary["warnings"] += watch.warnings()
     if uncertainty and monitor is not None:
         from fvsolver.outputs.uncertainty import estimate
 
@@ -252,13 +288,28 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
     history = {k: np.array([r.get(k, np.nan) for r in rows]) for k in rows[-1]}
     if folder is not None:
         _write_csv(folder / "history.csv", rows)
-        if plots:
-            _write_plots_and_report(folder, case, setup, summary, history, fields)
+        # the summary first: the computed result is kept whatever the drawing does
         atomic_write_text(folder / "summary.json", json.dumps(summary, indent=2))
+        if plots:
+            try:
+                _write_plots_and_report(folder, case, setup, summary, history, fields)
+            except Exception as exc:  # only the physics decides the status
+                summary["warnings"].append(f"the plots or the report could not be written ({type(exc).__name__}: "
+                                           f"{str(exc)[:200]}); the results are in summary.json, history.csv and "
+                                           "the field files")
+                atomic_write_text(folder / "summary.json", json.dumps(summary, indent=2))
     result = Result(summary, history, stepper.y[: setup.mesh.n_cells].copy(), stepper.y.copy(), setup)
     if status == "failed":
         raise SolverError(f"the run failed: {reason} (the last good fields are in the outputs)")
     return result
+
+
+def _step_limit(stepper, max_steps: int) -> str | None:
+    if stepper.counters.steps < max_steps or stepper.status != "running":
+        return None
+    return (f"the run took numerics.max_steps = {max_steps:,} steps and reached only t = {stepper.t:.6g} of "
+            f"{stepper.t_end:.6g} s (last step {stepper.last_dt:.3g} s); allow longer steps (tolerance, "
+            "min_step), shorten time.end, or raise numerics.max_steps")
 
 
 def _summary(case, setup, stepper, monitor, worst, status, reason) -> dict:
@@ -325,15 +376,16 @@ def _write_plots_and_report(folder: Path, case, setup, summary, history, fields)
         notes = ["target reached" if t == summary.get("time_to_target_s") else
                  ("end" if t == summary["end_time_s"] else "") for t, _ in chosen]
         temperature_field_plot(setup.mesh, [T for _, T in chosen], folder / "temperature_field.png",
-                               times=[t for t, _ in chosen], title=case["title"], subtitle=scenario, notes=notes)
+                               times=[t for t, _ in chosen], title=plain_title(case["title"]), subtitle=scenario,
+                               notes=notes)
         plots.append("temperature_field.png")
     if "pressure_drop_pa" in history:
         history_plot(history, folder / "history.png", summary["target_pressure_drop_pa"],
-                     summary["time_to_target_s"], title=case["title"], subtitle=scenario,
+                     summary["time_to_target_s"], title=plain_title(case["title"]), subtitle=scenario,
                      max_pressure_drop_pa=summary.get("max_pressure_drop_pa"))
         plots.append("history.png")
-    write_report(folder, summary, case["title"] or (case.path.stem if case.path else "case"), _inputs(case), plots,
-                 scenario=scenario)
+    write_report(folder, summary, plain_title(case["title"] or (case.path.stem if case.path else "case")),
+                 _inputs(case), plots, scenario=scenario)
 
 
 def _inputs(case) -> dict:

@@ -609,3 +609,61 @@ def sweep_plot(rows: Sequence[Mapping], keys: Sequence[str], path: Path, title: 
     if others:
         ax.legend(fontsize=7.5, frameon=False)
     _save(fig, path)
+
+
+# one marker per outcome, in order of first appearance (filled for the first: the device runs)
+_OUTCOME_MARKERS = ("o", "X", "^", "s", "D", "v", "P", "*")
+
+
+def envelope_plot(temperatures: np.ndarray, humidities: np.ndarray, values: np.ndarray, outcomes: np.ndarray,
+                  completed: np.ndarray, path: Path, label: str, offset: float = 0.0, title: str = "") -> None:
+    """The operating map: a headline result over room temperature and relative humidity.
+
+    Filled contours of ``values`` where the device runs (finite values), the boundary where it
+    stops (drawn and labelled), and each run's outcome as its own marker.
+
+    Parameters
+    ----------
+    temperatures : (n_t,) K, room air temperatures (drawn in °C)
+    humidities : (n_h,) relative humidities (drawn in %)
+    values : (n_t, n_h) the headline result, NaN where the device does not run
+    outcomes : (n_t, n_h) the outcome of each run, in words
+    completed : (n_t, n_h) bool, False for a run that failed (it neither runs nor stops: the
+        boundary is not drawn through it)
+    label : the headline's name and unit, for the colour bar
+    offset : added to ``values`` for display (-273.15 for kelvin shown in °C)
+    """
+    t_c = np.asarray(temperatures, float) - 273.15
+    rh = 100.0 * np.asarray(humidities, float)
+    V = np.asarray(values, float).T + offset  # (n_h, n_t): rows along humidity
+    runs = np.isfinite(V)
+    fig, ax = plt.subplots(figsize=(7.4, 5.0), layout="constrained")
+    if runs.sum() >= 2 and np.nanmax(V) > np.nanmin(V):
+        levels = matplotlib.ticker.MaxNLocator(nbins=10).tick_values(np.nanmin(V), np.nanmax(V))
+        filled = ax.contourf(t_c, rh, np.ma.masked_invalid(V), levels=levels, cmap="viridis", extend="neither")
+        fig.colorbar(filled, ax=ax, label=label)
+    elif runs.any():  # one value only: shade the cells that run
+        ax.pcolormesh(t_c, rh, np.ma.masked_invalid(V), cmap="viridis", shading="nearest")
+    stops = ~runs & np.asarray(completed, bool).T
+    if runs.any() and stops.any():
+        indicator = np.ma.masked_array(runs.astype(float), mask=~(runs | stops))
+        boundary = ax.contour(t_c, rh, indicator, levels=[0.5], colors="black", linewidths=2.0)
+        ax.clabel(boundary, fmt={0.5: "stop boundary"}, fontsize=8.5, inline=True)
+    kinds = list(dict.fromkeys(str(o) for o in np.asarray(outcomes).T.ravel()))
+    TT, HH = np.meshgrid(t_c, rh)
+    O = np.asarray(outcomes).T.astype(str)
+    for k, kind in enumerate(kinds):
+        sel = O == kind
+        marker = _OUTCOME_MARKERS[k % len(_OUTCOME_MARKERS)]
+        ran = runs[sel].all()
+        ax.plot(TT[sel], HH[sel], ls="none", marker=marker, ms=6.5 if ran else 7.5,
+                mfc="white" if ran else "#c0392b", mec="black", mew=0.8, label=kind)
+    ax.set_xlabel("room air temperature (°C)")
+    ax.set_ylabel("relative humidity (%)")
+    ax.set_xlim(t_c.min() - 0.03 * np.ptp(t_c), t_c.max() + 0.03 * np.ptp(t_c))
+    ax.set_ylim(rh.min() - 0.03 * np.ptp(rh), rh.max() + 0.03 * np.ptp(rh))
+    ax.legend(title="outcome", fontsize=8, title_fontsize=8.5, loc="upper center", bbox_to_anchor=(0.5, -0.12),
+              ncol=min(4, len(kinds)), frameon=False)
+    if title:
+        ax.set_title(title, fontsize=10)
+    _save(fig, path)

@@ -4,6 +4,7 @@ from __future__ import annotations
 import math
 from pathlib import Path
 
+from fvsolver.case.loader import excerpt
 from fvsolver.case.schema import SHAPES
 
 GLASS, CAP, AXIS = "glass", "cap", "axis"
@@ -82,22 +83,34 @@ def check_consistency(data: dict, v) -> None:
     if len(v.problems) > start:
         return
     if shape == "mesh_file":
+        from fvsolver.case.limits import vtu_counts
         from fvsolver.errors import MeshError
         from fvsolver.vtk_io import read_mesh
 
+        if "\x00" in geo["file"]:
+            v.error("geometry.file", f"got {excerpt(geo['file'])}, which holds a NUL character; expected a "
+                    "file name")
+            return
         path = resolve_mesh_file(geo["file"], Path(data.get("_folder", ".")))
         if path is None:
-            v.error("geometry.file", f"got {geo['file']!r}, expected a path inside the case's folder or meshes/ "
+            v.error("geometry.file", f"got {excerpt(geo['file'])}, expected a path inside the case's folder or meshes/ "
                     "(or an absolute path); relative paths may not climb out with '..'")
             return
         if not path.is_file():
-            v.error("geometry.file", f"got {geo['file']!r}, expected a VTU file in the case's folder or meshes/ "
+            v.error("geometry.file", f"got {excerpt(geo['file'])}, expected a VTU file in the case's folder or meshes/ "
                     f"(looked for {path}); write one with `fvsolver mesh`")
+            return
+        points, cells = vtu_counts(path)
+        limit = data["numerics"]["max_cells"]
+        if cells > limit or points > 4 * limit:
+            v.error("geometry.file", f"the mesh {excerpt(str(path))} declares {cells:,} cells and {points:,} points, "
+                    f"more than numerics.max_cells = {limit:,} allows; use a coarser mesh or raise "
+                    "numerics.max_cells")
             return
         try:
             mesh = read_mesh(path)
         except MeshError as exc:
-            v.error("geometry.file", f"the mesh {str(path)!r} is not usable: {exc}")
+            v.error("geometry.file", f"the mesh {excerpt(str(path))} is not usable: {exc}")
             return
         geo["file"] = str(path)
         patches, materials = mesh.patch_names, mesh.material_names
@@ -158,7 +171,12 @@ def check_consistency(data: dict, v) -> None:
                 f"<= initial_step <= max_step ({num['max_step']!r})")
     bad = [t for t in data["output"]["field_times"] if not 0.0 <= t <= end]
     if bad:
-        v.error("output.field_times", f"got {bad}, expected times in [0, time.end = {end!r}] s")
+        v.error("output.field_times", f"got {excerpt(bad)}, expected times in [0, time.end = {end!r}] s")
+    if len(v.problems) == start:  # the size of the run, before anything is allocated
+        from fvsolver.case.limits import limit_problems
+
+        for key, message in limit_problems(data):
+            v.error(key, message)
 
 
 DEFAULT_CONDENSING_PATCHES = ("inner_wall", "bore")

@@ -119,6 +119,7 @@ GEOMETRY = table(
         choices=("axisymmetric", "planar")),
     Key("file", "string", "A VTU mesh written by `fvsolver mesh` (resolved in the case's folder or meshes/)."),
     Key("material", "string", "Material tag of a one-material shape.", default="glass"),
+    default=REQUIRED,
 )
 
 MESH = table(
@@ -142,6 +143,14 @@ NUMERICS = table(
     num("initial_step", "First (or, if not adaptive, every) time step.", "s", 0.1, positive=True),
     num("min_step", "Smallest step before the run fails.", "s", 1e-6, positive=True),
     num("max_step", "Largest step.", "s", 60.0, positive=True),
+    Key("max_cells", "integer", "Refuse a mesh estimated larger than this many cells (raise it for a bigger "
+        "machine).", default=200_000, minimum=1),
+    num("max_memory_mb", "Refuse a run whose memory is estimated above this (megabytes).", "MB", 4000.0,
+        positive=True),
+    Key("max_output_files", "integer", "Refuse a run that would write more field files than this.",
+        default=2000, minimum=1),
+    Key("max_steps", "integer", "Refuse a run that needs more steps than this, and stop one that takes them.",
+        default=2_000_000, minimum=1),
 )
 
 OUTPUT = table(
@@ -261,7 +270,8 @@ CASE = table(
     Key("heat_sources", "tables", "Heat fluxes imposed on outer patches of the head.", default=[],
         item=HEAT_SOURCE),
     table("safety", SAFETY.doc, *SAFETY.children, default={}),
-    table("time", "Simulated time.", num("end", "End of the simulation.", "s", REQUIRED, positive=True)),
+    table("time", "Simulated time.", num("end", "End of the simulation.", "s", REQUIRED, positive=True),
+          default=REQUIRED),
     table("numerics", NUMERICS.doc, *NUMERICS.children, default={}),
     table("output", OUTPUT.doc, *OUTPUT.children, default={}),
 )

@@ -202,4 +202,5 @@ def wet_surface_temperature(problem) -> float:
 def room_summary(room) -> dict:
     return {"air_temperature_k": room.air_temperature, "relative_humidity": room.relative_humidity,
             "wet_bulb_temperature_k": room.wet_bulb_temperature,
-            "dew_point_k": float(moist_air.dew_point(room.vapour_pressure))}
+            # perfectly dry air (relative humidity 0) has no dew point
+            "dew_point_k": float(moist_air.dew_point(room.vapour_pressure)) if room.vapour_pressure > 0 else None}
