@@ -45,7 +45,7 @@ def test_a_humid_room_stays_below_the_stated_bound(emissivity):
     assert s["target_reached"] is False
     reason = s["stall_reason"]
     assert "too humid" in reason, reason
-    bound = float(re.search(r"allows at most about (\d+) Pa", reason).group(1))
+    bound = float(re.search(r"allows at most about (\d+(?:\.\d+)?) Pa", reason).group(1))
     assert s["max_pressure_drop_pa"] <= bound
     assert s["max_pressure_drop_pa"] > 0.6 * bound
 
@@ -67,3 +67,15 @@ def test_outer_patches_are_refused_as_condensing_patches(patch):
     with pytest.raises(CaseError, match=rf"fluid.condensing_patches: got '{patch}'.*expected patches of the "
                                         r"vapour space \(one of inner_wall, bore\)"):
         device_case(fluid={"name": "dichloromethane", "condensing_patches": ["inner_wall", patch]})
+
+
+def test_a_saturated_room_quotes_one_largest_difference(tmp_path):
+    """In a saturated room nothing evaporates: the stall reason, the report and the summary quote the
+    same largest pressure difference, in the same spelling."""
+    case = device_case(room={"relative_humidity": 1.0}, time={"end": 60.0})
+    s = run(case, tmp_path / "run").summary
+    assert s["target_reached"] is False and "too humid" in s["stall_reason"]
+    quoted = re.search(r"the largest difference reached was (\S+ k?Pa)", s["stall_reason"]).group(1)
+    report = (tmp_path / "run" / "report.md").read_text()
+    assert f"the largest difference was {quoted}" in report
+    assert len(set(re.findall(r"largest (?:pressure )?difference (?:reached )?was (\S+ k?Pa)", report))) == 1
