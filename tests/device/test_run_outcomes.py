@@ -5,6 +5,7 @@ from __future__ import annotations
 import re
 from pathlib import Path
 
+import numpy as np
 import pytest
 
 from fvsolver.case.loader import load_case, with_changes
@@ -79,3 +80,25 @@ def test_a_saturated_room_quotes_one_largest_difference(tmp_path):
     report = (tmp_path / "run" / "report.md").read_text()
     assert f"the largest difference was {quoted}" in report
     assert len(set(re.findall(r"largest (?:pressure )?difference (?:reached )?was (\S+ k?Pa)", report))) == 1
+
+
+def test_outputs_at_a_target_stop(tmp_path):
+    """A run that stops at its target writes the field at the crossing, says which field times it
+    never reached, and its history starts with the t = 0 rates (not zeros)."""
+    import xml.etree.ElementTree as ET
+
+    case = device_case(time={"end": 120.0}, output={"field_times": [5.0, 10.0, 100.0]})
+    result = run(case, tmp_path / "run", plots=False)
+    s, h = result.summary, result.history
+    assert s["target_reached"] is True and s["field_times_not_reached_s"] == [100.0]
+    times = [float(d.get("timestep")) for d in ET.parse(tmp_path / "run" / "fields.pvd").iter("DataSet")]
+    assert s["time_to_target_s"] in times and times[-1] == s["end_time_s"]
+    assert h["evaporation_rate_kg_s"][0] > 0.0
+    assert h["evaporation_rate_kg_s"][0] == pytest.approx(h["evaporation_rate_kg_s"][1], rel=0.05)
+    assert h["heat_in_w"][0] < 0.0 and h["evaporative_cooling_w"][0] > 0.0
+    # the cooling is the latent heat of the evaporated water: L ~ 2.44 MJ/kg near 24 C (IAPWS-95,
+    # common practice value)
+    ratio = h["evaporative_cooling_w"][1:] / h["evaporation_rate_kg_s"][1:]
+    assert np.all((ratio > 2.40e6) & (ratio < 2.48e6))
+    assert np.allclose(h["condensing_rate_kg_s"] - h["re_evaporation_rate_kg_s"], h["condensation_rate_kg_s"],
+                       rtol=1e-9, atol=1e-15)
