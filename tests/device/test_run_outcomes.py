@@ -102,3 +102,17 @@ def test_outputs_at_a_target_stop(tmp_path):
     assert np.all((ratio > 2.40e6) & (ratio < 2.48e6))
     assert np.allclose(h["condensing_rate_kg_s"] - h["re_evaporation_rate_kg_s"], h["condensation_rate_kg_s"],
                        rtol=1e-9, atol=1e-15)
+
+
+def test_an_interrupted_run_leaves_the_target_open(tmp_path):
+    """Ctrl-C before the target: not 'NOT reached: None' but an open question, in the summary and the
+    report."""
+    def interrupt(stepper, monitor):
+        if stepper.counters.steps >= 3:
+            raise KeyboardInterrupt
+
+    result = run(device_case(), tmp_path / "run", progress=interrupt)
+    s = result.summary
+    assert s["status"] == "interrupted" and s["target_reached"] is None and s["stall_reason"] is None
+    report = (tmp_path / "run" / "report.md").read_text()
+    assert "before the pressure difference reached the target" in report and "None" not in report
