@@ -119,7 +119,6 @@ def _run(args) -> int:
         raise CaseError(f"--resume {args.resume} --out {args.out}: a resumed run continues in its own folder; "
                         "leave out --out (or copy the folder first and resume the copy)")
     case = load_case(args.case)
-    _input_warnings(case)
     out = args.resume or args.out or Path("results") / args.case.stem
     if args.resume is None and not args.overwrite:
         out = _fresh_folder(args, out)
@@ -132,6 +131,7 @@ def _run(args) -> int:
     finally:
         if bar is not None:
             bar.close()
+    _input_warnings(case)  # after the set-up, so that a case that cannot be set up shows its error alone
     s = result.summary
     _say(args, f"{s['title'] or args.case.stem}: {s['status']} at t = {s['end_time_s']:.6g} s "
                f"({s['n_steps']} steps, {s['n_cells']} cells)")
@@ -225,7 +225,7 @@ def _compare(args) -> int:
 
 
 def _input_warnings(case) -> None:
-    """Valid but implausible inputs (a unit slip, most often), on stderr before anything runs."""
+    """Valid but implausible inputs (a unit slip, most often), on stderr."""
     from fvsolver.case.units import implausible
 
     for text in implausible(case.data):
@@ -286,8 +286,8 @@ def _check(args) -> int:
     from fvsolver.case.setup_check import build_checked
 
     case = load_case(args.case)
-    _input_warnings(case)
-    build_checked(case)  # what run sets up, check sets up: the mesh, the properties, the conditions
+    build_checked(case)
+    _input_warnings(case)  # only for a case that can be set up: its errors come first
     _say(args, f"{args.case}: valid (schema {case['schema_version']}, sha256 {case.sha256[:12]}; "
                f"{estimate(case.data).describe()})")
     return EXIT_OK

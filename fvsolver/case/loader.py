@@ -138,7 +138,7 @@ class Validator:
             try:
                 value = to_schema_unit(value, key.unit)
             except ValueError as exc:
-                self.error(path, f"got {value!r}: {exc}")
+                self.error(path, f"got {excerpt(value)}: {exc}")
                 return value
         if kind == "number":
             if not _is_number(value):
