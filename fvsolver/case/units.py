@@ -39,8 +39,9 @@ def to_schema_unit(value: str, unit: str) -> float:
     if match is None:
         raise ValueError(f"expected a number with a unit such as '1.2 mm' or '24 degC' in {unit or 'no unit'}")
     magnitude, given = float(match.group(1)), match.group(2)
-    if not given:  # a number written as text: already in the key's unit
-        return magnitude
+    if not given:  # a number in quotes is more likely a slip than a choice: say so
+        raise ValueError(f"expected a number, or a value with its unit in quotes; write {magnitude:g} without "
+                         f"quotes (in {unit or 'no unit'}) or add the unit, e.g. \"{magnitude:g} mm\"")
     try:
         registry = _registry()
     except ImportError:

@@ -24,10 +24,14 @@ ROOT = Path(__file__).resolve().parents[2]
     ("1 atm", "Pa", 101325.0),         # standard atmosphere (ISO 2533)
     ("5 W/(m^2 K)", "W/(m2 K)", 5.0),
     ("110 deg", "deg", 110.0),
-    ("0.019", "m", 0.019),
 ])
 def test_values_with_units_convert_to_the_schema_unit(text, unit, expected):
     assert to_schema_unit(text, unit) == pytest.approx(expected, rel=1e-12)
+
+
+def test_a_number_in_quotes_without_a_unit_is_refused():
+    with pytest.raises(ValueError, match="write 0.019 without quotes"):
+        to_schema_unit("0.019", "m")
 
 
 def test_a_case_with_units_equals_the_plain_case(tmp_path):
