@@ -20,7 +20,7 @@ EPILOG = """\
 examples:
   fvsolver run cases/demo.toml --out results/demo
   fvsolver run cases/demo.toml --resume results/demo     (continue a killed run)
-  fvsolver sweep cases/demo.toml --vary room.relative_humidity=0.3:0.8:6 \
+  fvsolver sweep cases/demo.toml --vary "room.relative_humidity=linspace(0.3,0.8,6)" \
                  --vary room.air_temperature=293.15,298.15 --out results/humidity
   fvsolver compare results/demo baselines/demo          (a regression check against a kept run)
   fvsolver check cases/glass_bulb_cooling.toml
@@ -69,7 +69,7 @@ def _parser() -> argparse.ArgumentParser:
                                 "uncertainty of the time to target")
         if name == "sweep":
             s.add_argument("--vary", action="append", default=[], metavar="KEY.PATH=VALUES", required=True,
-                           help="a key and its values: V1,V2,... (TOML values) or START:STOP:N; repeat "
+                           help="a key and its values: V1,V2,... (TOML values) or linspace(START,STOP,N); repeat "
                                 "for a grid (the first key varies slowest)")
             s.add_argument("--out", type=Path, default=None, help="output folder (default: results/<case name>_sweep)")
             s.add_argument("--overwrite", action="store_true", help="write into a non-empty output folder")
@@ -131,6 +131,7 @@ def _run(args) -> int:
     finally:
         if bar is not None:
             bar.close()
+    _input_warnings(case)  # after the set-up, so that a case that cannot be set up shows its error alone
     s = result.summary
     _say(args, f"{s['title'] or args.case.stem}: {s['status']} at t = {s['end_time_s']:.6g} s "
                f"({s['n_steps']} steps, {s['n_cells']} cells)")
@@ -224,6 +225,14 @@ def _compare(args) -> int:
     return EXIT_OK
 
 
+def _input_warnings(case) -> None:
+    """Valid but implausible inputs (a unit slip, most often), on stderr."""
+    from fvsolver.case.units import implausible
+
+    for text in implausible(case.data):
+        print(f"warning: {text}", file=sys.stderr)
+
+
 def _fresh_folder(args, out: Path) -> Path:
     """A folder that holds an earlier run (its run_info.json) is kept: the new run goes to the
     first free ``NAME-2``, ``NAME-3`` ... beside it, and the user is told.  Any other non-empty
@@ -278,7 +287,8 @@ def _check(args) -> int:
     from fvsolver.case.setup_check import build_checked
 
     case = load_case(args.case)
-    build_checked(case)  # what run sets up, check sets up: the mesh, the properties, the conditions
+    build_checked(case)
+    _input_warnings(case)  # only for a case that can be set up: its errors come first
     _say(args, f"{args.case}: valid (schema {case['schema_version']}, sha256 {case.sha256[:12]}; "
                f"{estimate(case.data).describe()})")
     return EXIT_OK

@@ -56,27 +56,108 @@ class Comparison:
     new: Path
     baseline: Path
     checks: list = field(default_factory=list)
+    warnings: list = field(default_factory=list)  # e.g. the cases differ in kind
 
     @property
     def passed(self) -> bool:
         return all(c.passed is not False for c in self.checks)
 
-    def table(self) -> str:
-        head = ("quantity", "baseline", "new", "difference", "tolerance", "verdict")
-        rows = [head]
+    def table(self, width: int | None = None) -> str:
+        """The checks as a table that fits ``width`` columns (default: the terminal's): quantity, unit,
+        baseline, new, absolute and relative difference, tolerance, verdict; notes follow as
+        numbered footnotes instead of widening the table."""
+        import shutil
+        import textwrap
+
+        width = width or shutil.get_terminal_size((100, 24)).columns
+        head = ("quantity", "unit", "baseline", "new", "abs diff", "rel diff", "tolerance", "verdict")
+        rows, notes = [], []
         for c in self.checks:
+            name, unit = _split_unit(c.quantity)
             verdict = "not compared" if c.passed is None else ("ok" if c.passed else "DIFFERS")
-            rows.append((c.quantity, _fmt(c.baseline), _fmt(c.new),
-                         "" if c.difference is None else f"{c.difference:.3g}", c.tolerance,
-                         verdict + (f" ({c.note})" if c.note else "")))
-        widths = [max(len(r[i]) for r in rows) for i in range(len(head))]
-        lines = ["  ".join(v.ljust(w) for v, w in zip(r, widths)).rstrip() for r in rows]
-        lines.insert(1, "  ".join("-" * w for w in widths))
+            if c.note:
+                notes.append(c.note)
+                verdict += f" [{len(notes)}]"
+            absolute, relative = _differences(c)
+            rows.append((name.replace("_", " "), unit, _fmt(c.baseline), _fmt(c.new), absolute, relative,
+                         c.tolerance, verdict))
+        widths = [max(len(r[i]) for r in [head, *rows]) for i in range(len(head))]
+        rest = sum(widths[1:]) + (len(head) - 1)
+        widths[0] = max(20, min(widths[0], width - rest))  # long names wrap onto more lines
+        lines = []
+        for r in [head, *rows]:
+            first = textwrap.wrap(r[0], widths[0], break_long_words=False) or [""]
+            lines.append(" ".join(v.ljust(w) for v, w in zip((first[0], *r[1:]), widths)).rstrip())
+            lines += [part for part in first[1:]]
+            if r is head:
+                lines.append(" ".join("-" * w for w in widths))
+        for k, text in enumerate(notes, 1):
+            lines += textwrap.wrap(f"[{k}] {text}", width, subsequent_indent="    ")
+        for text in self.warnings:
+            lines += textwrap.wrap(f"WARNING: {text}", width, subsequent_indent="    ")
         return "\n".join(lines)
 
     def as_dict(self) -> dict:
         return {"new": str(self.new), "baseline": str(self.baseline), "passed": self.passed,
-                "checks": [c.__dict__ for c in self.checks]}
+                "checks": [c.__dict__ for c in self.checks], "warnings": self.warnings}
+
+
+UNITS = (("_s", "s"), ("_pa", "Pa"), ("_k", "K"), ("_kg_s", "kg/s"), ("_w", "W"), ("_kg", "kg"))
+
+
+def _split_unit(quantity: str) -> tuple[str, str]:
+    """("history pressure_drop (largest)", "Pa") from "history pressure_drop_pa (largest)"."""
+    head, sep, tail = quantity.partition(" (")
+    for suffix, unit in sorted(UNITS, key=lambda u: -len(u[0])):
+        if head.endswith(suffix):
+            return head[: -len(suffix)] + (sep + tail if sep else ""), unit
+    if quantity.startswith("temperature field"):
+        return quantity, "K"
+    return quantity, ""
+
+
+def _differences(c: Check) -> tuple[str, str]:
+    """Absolute and relative difference, new - baseline, each in its own column."""
+    a, b = c.baseline, c.new
+    if isinstance(a, int | float) and isinstance(b, int | float) and not isinstance(a, bool) \
+            and not isinstance(b, bool):
+        diff = b - a
+        rel = f"{diff / abs(a):+.1e}" if a != 0 else ""
+        return f"{diff:+.3g}", rel
+    if c.difference is not None:  # a worst-step or cell difference: absolute unless marked relative
+        return ("", f"{c.difference:.1e}") if c.tolerance.startswith("rel") else (f"{c.difference:.3g}", "")
+    return "", ""
+
+
+def kind_differences(new: Path, baseline: Path) -> list[str]:
+    """What makes two runs different kinds of case (shape, fluid, cap water, second bulb, target,
+    device or conduction only), from their case_resolved.toml; [] when alike or unknown."""
+    import tomllib
+
+    def read(folder):
+        path = folder / "case_resolved.toml"
+        try:
+            return tomllib.loads(path.read_text())
+        except (OSError, tomllib.TOMLDecodeError):
+            return None
+
+    cn, cb = read(new), read(baseline)
+    if cn is None or cb is None:
+        return []
+    out = []
+    kind = lambda d: "device" if "fluid" in d else "conduction only"  # noqa: E731
+    if kind(cn) != kind(cb):
+        return [f"the cases differ in kind: the baseline is a {kind(cb)} case, the new run a {kind(cn)} case; "
+                "their results are not comparable"]
+    for path in ("geometry.shape", "fluid.name", "cap_water.mode", "second_bulb.mode", "room.convection"):
+        table, key = path.split(".")
+        a, b = cb.get(table, {}).get(key), cn.get(table, {}).get(key)
+        if a != b:
+            out.append(f"{path}: baseline {a!r}, new {b!r}")
+    targets = [("column_height" in c.get("target", {})) for c in (cb, cn)]
+    if "target" in cb and targets[0] != targets[1]:
+        out.append("target: one is a column height, the other a pressure difference")
+    return [f"the cases differ in kind ({'; '.join(out)}): differences are expected, not regressions"] if out else []
 
 
 def _fmt(v) -> str:
@@ -145,7 +226,7 @@ def compare(new: str | Path, baseline: str | Path, rtol: float = 1e-3, temperatu
     if (new / "sweep.json").exists() and (baseline / "sweep.json").exists():
         return _compare_sweeps(new, baseline, rtol, temperature_tol, history_rtol)
     sn, sb = _summary(new), _summary(baseline)
-    out = Comparison(new, baseline)
+    out = Comparison(new, baseline, warnings=kind_differences(new, baseline))
     add = out.checks.append
     for key in EXACT_KEYS:
         a, b = sb.get(key), sn.get(key)
@@ -190,8 +271,11 @@ def _compare_histories(out, hb, hn, sb, history_rtol, temperature_tol) -> None:
         worst = float(np.nanmax(np.abs(b - a)))
         if name == "pressure_drop_pa":
             scale = max(float(np.nanmax(np.abs(hb[name]))), abs(sb.get("target_pressure_drop_pa") or 0.0), 1e-300)
-            out.checks.append(Check(f"history {name} (largest)", float(np.nanmax(a)), float(np.nanmax(b)),
-                                    worst / scale, f"rel {history_rtol:g}", worst / scale <= history_rtol))
+            # each side's own largest value over the common span (not the new run interpolated)
+            own = (tn >= tb[span][0]) & (tn <= tb[span][-1])
+            out.checks.append(Check(f"history {name} (largest)", float(np.nanmax(a)), float(np.nanmax(hn[name][own])),
+                                    worst / scale, f"rel {history_rtol:g}", worst / scale <= history_rtol,
+                                    "difference: the worst step, relative to the largest value or the target"))
         else:
             out.checks.append(Check(f"history {name} (worst step)", None, None, worst, f"{temperature_tol:g} K",
                                     worst <= temperature_tol))

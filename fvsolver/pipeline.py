@@ -333,6 +333,9 @@ def _summary(case, setup, stepper, monitor, worst, status, reason) -> dict:
         "min_temperature_k": float(T.min()), "max_temperature_k": float(T.max()),
         "warnings": [],
     }
+    from fvsolver.case.units import implausible
+
+    summary["input_warnings"] = implausible(case.data)
     if monitor is not None:
         reached = monitor.time_to_target is not None
         skipped = [float(t) for t in setup.field_times if stepper.t < t < setup.end_time]

@@ -558,7 +558,13 @@ def _titles(fig, title: str, subtitle: str) -> None:
         fig.suptitle(title or subtitle, fontsize=11)
 
 
-def sweep_plot(rows: Sequence[Mapping], keys: Sequence[str], path: Path, title: str = "") -> None:
+def _with_unit(key: str, units: Mapping | None) -> str:
+    unit = (units or {}).get(key, "")
+    return f"{key} ({unit})" if unit else key
+
+
+def sweep_plot(rows: Sequence[Mapping], keys: Sequence[str], path: Path, title: str = "",
+               units: Mapping[str, str] | None = None) -> None:
     """Time to target against the first swept key, one line per combination of the others.
 
     Runs that did not reach the target are drawn as open markers on the top edge of the panel
@@ -569,6 +575,7 @@ def sweep_plot(rows: Sequence[Mapping], keys: Sequence[str], path: Path, title: 
     rows : the sweep's rows (``time_to_target_s`` in s or None, and one entry per key)
     keys : the swept key paths, the first one on the horizontal axis (numeric values)
     path : the PNG to write (atomically)
+    units : key path -> unit, shown with the axis label and the legend
     """
     first, others = keys[0], list(keys[1:])
     groups: dict[tuple, list[Mapping]] = {}
@@ -582,7 +589,8 @@ def sweep_plot(rows: Sequence[Mapping], keys: Sequence[str], path: Path, title: 
         members = sorted(members, key=lambda r: r[first])
         x = np.array([float(r[first]) for r in members])
         y = np.array([np.nan if r["time_to_target_s"] is None else float(r["time_to_target_s"]) for r in members])
-        name = ", ".join(f"{k.split('.')[-1]} = {v:g}" if isinstance(v, int | float) else f"{k.split('.')[-1]} = {v}"
+        name = ", ".join(f"{k.split('.')[-1]} = {v:g}" + (f" {units[k]}" if units and units.get(k) else "")
+                         if isinstance(v, int | float) else f"{k.split('.')[-1]} = {v}"
                          for k, v in zip(others, label)) or None
         (line,) = ax.plot(x, y, marker="s", ms=4.5, lw=1.3, label=name)
         missed = np.isnan(y)
@@ -594,7 +602,7 @@ def sweep_plot(rows: Sequence[Mapping], keys: Sequence[str], path: Path, title: 
         ax.annotate("not reached", (0.01, top), xycoords=("axes fraction", "data"), va="bottom",
                     fontsize=7.5, color="0.35")
     ax.set_ylim(0.0, 1.12 * top)
-    ax.set_xlabel(first)
+    ax.set_xlabel(_with_unit(first, units))
     ax.set_ylabel("time to target (s)")
     if title:
         ax.set_title(title, fontsize=9.5)

@@ -1,6 +1,6 @@
 """Parameter sweeps: one case run over a grid of changed keys, one row per run.
 
-``fvsolver sweep CASE --vary room.relative_humidity=0.3,0.5,0.7 --vary room.air_temperature=293.15:303.15:3``
+``fvsolver sweep CASE --vary room.relative_humidity=0.3,0.5,0.7 --vary "room.air_temperature=linspace(293.15,303.15,3)"``
 runs every combination (the full grid, first key slowest), each in its own folder under
 ``runs/``, and writes ``sweep.csv`` (the varied values and each run's key results), updated
 after every run so that a killed sweep keeps the finished rows, ``sweep.json`` at the end,
@@ -16,7 +16,9 @@ import itertools
 import json
 import math
 import os
+import re
 import time as wall
+import warnings
 import tomllib
 from dataclasses import dataclass
 from pathlib import Path
@@ -43,34 +45,54 @@ class Vary:
     values: tuple
 
 
+_LINSPACE = re.compile(r"linspace\(([^,()]*),([^,()]*),([^,()]*)\)")
+
+
+def _clean(v: float) -> float:
+    """A computed value without float noise (0.6000000000000001 -> 0.6): 12 significant digits."""
+    return float(f"{v:.12g}")
+
+
 def parse_vary(text: str) -> Vary:
-    """``KEY.PATH=V1,V2,...`` (TOML values; bare words are strings) or ``KEY.PATH=START:STOP:N``
-    (N evenly spaced numbers, both ends included; whole numbers when START and STOP are written
-    as whole numbers, for cell counts)."""
+    """``KEY.PATH=V1,V2,...`` (TOML values; bare words are strings) or
+    ``KEY.PATH=linspace(START,STOP,N)``: N evenly spaced numbers, both ends included, as numpy's
+    and MATLAB's linspace (whole numbers when START and STOP are written as whole numbers, for cell
+    counts).  The older ``START:STOP:N`` still works, with a deprecation warning: it reads as
+    start:step:stop to MATLAB users and as a slice to Python users."""
     where = f"--vary {text!r}"
     if "=" not in text:
         raise CaseError(f"{where}: expected KEY.PATH=VALUES, e.g. room.relative_humidity=0.3,0.5,0.7 "
-                        "or room.air_temperature=293.15:303.15:3")
+                        "or room.air_temperature=linspace(293.15,303.15,3)")
     path, _, spec = (s.strip() for s in text.partition("="))
     if not path or any(not p for p in path.split(".")):
         raise CaseError(f"{where}: the key path {path!r} is empty or has an empty part; write it as "
                         "table.key, e.g. room.relative_humidity")
     parts = spec.split(":")
+    match = _LINSPACE.fullmatch(spec.replace(" ", ""))
+    if match:
+        parts = list(match.groups())
+    elif spec.startswith("linspace"):
+        raise CaseError(f"{where}: got {spec!r}, expected linspace(START,STOP,N) with numbers START, STOP and a "
+                        "whole N >= 2, e.g. linspace(0.2,0.8,4)")
+    elif len(parts) == 3:
+        warnings.warn(f"{where}: START:STOP:N is deprecated (it reads as start:step:stop in MATLAB and as a slice "
+                      f"in Python); write {path}=linspace({parts[0]},{parts[1]},{parts[2]})", FutureWarning,
+                      stacklevel=2)
     if len(parts) == 3:
         try:
             start, stop, count = float(parts[0]), float(parts[1]), int(parts[2])
         except ValueError:
-            raise CaseError(f"{where}: got range {spec!r}, expected START:STOP:N with numbers START, STOP "
-                            "and a whole N >= 2") from None
+            raise CaseError(f"{where}: got range {spec!r}, expected linspace(START,STOP,N) (or the deprecated "
+                            "START:STOP:N) with numbers START, STOP and a whole N >= 2") from None
         if count < 2:
-            raise CaseError(f"{where}: got N = {count}, expected at least 2 points in START:STOP:N")
+            raise CaseError(f"{where}: got N = {count}, expected at least 2 points in linspace(START,STOP,N)")
         values = np.linspace(start, stop, count)
         if all(p.strip().lstrip("+-").isdigit() for p in parts[:2]):  # whole-number ends: whole values
             if not np.all(values == np.round(values)):
                 raise CaseError(f"{where}: the whole-number range {spec!r} does not step by whole numbers; "
                                 f"choose N so that (STOP - START) / (N - 1) is whole, or write START as {start:g}.0")
             return Vary(path, tuple(int(v) for v in np.round(values)))
-        return Vary(path, tuple(float(v) for v in values))
+        return Vary(path, tuple(_clean(v) for v in values))
     try:
         values = tomllib.loads(f"v = [{spec}]")["v"]
     except tomllib.TOMLDecodeError:
@@ -86,6 +108,51 @@ def parse_vary(text: str) -> Vary:
     return Vary(path, tuple(values))
 
 
+def unknown_key(path: str) -> str | None:
+    """Why the dotted ``path`` names no case key (None when it does), in terms of the command line."""
+    import difflib
+
+    from fvsolver.case.schema import CASE
+
+    node = CASE
+    done = []
+    for part in path.split("."):
+        if node.kind == "map":
+            node = node.item
+        elif node.kind == "tables" and part.isdigit():
+            node = node.item
+        elif node.kind == "table":
+            names = [c.name for c in node.children]
+            child = next((c for c in node.children if c.name == part), None)
+            if child is None:
+                close = difflib.get_close_matches(part, names, n=1)
+                hint = f"; did you mean {close[0]!r} ({'.'.join(done + [close[0]])})?" if close else ""
+                return (f"--vary {path}=...: no case key {'.'.join(done + [part])!r} (expected one of "
+                        f"{', '.join(names)}){hint}; `fvsolver keys` lists them")
+            node = child
+        else:
+            return f"--vary {path}=...: {'.'.join(done)!r} is a single value, it has no key {part!r}"
+        done.append(part)
+    if node.kind in ("table", "map"):
+        return f"--vary {path}=...: {path!r} is a table, expected one of its keys (`fvsolver keys {path}`)"
+    return None
+
+
+def key_unit(path: str) -> str:
+    """The schema's unit of a dotted key path ("" when it has none or the path is not a key)."""
+    from fvsolver.case.schema import CASE
+
+    node = CASE
+    for part in path.split("."):
+        if node.kind == "map" or (node.kind == "tables" and part.isdigit()):
+            node = node.item  # the part is a free name (a material, a patch) or an index
+            continue
+        node = next((c for c in node.children if c.name == part), None) if node.kind == "table" else None
+        if node is None:
+            return ""
+    return node.unit
+
+
 def variants(case: Case, varies: list[Vary]) -> list[tuple[dict, Case]]:
     """Every combination of the varied values, validated before anything runs.
 
@@ -96,6 +163,10 @@ def variants(case: Case, varies: list[Vary]) -> list[tuple[dict, Case]]:
     seen = [v.path for v in varies]
     if len(set(seen)) != len(seen):
         raise CaseError(f"sweep: a key is varied twice ({seen}); give each key once with all its values")
+    # a key path that does not exist is a slip on the command line: said once, not once per run
+    unknown = [problem for v in varies if (problem := unknown_key(v.path))]
+    if unknown:
+        raise CaseErrors(unknown)
     out, problems = [], []
     for combo in itertools.product(*(v.values for v in varies)):
         changes = dict(zip(seen, combo))
@@ -239,11 +310,12 @@ def sweep(case: Case, varies: list[Vary], out: str | Path | None = None, overwri
 
         name = case.path.name if case.path else "a case"
         plot = None
+        units = {v.path: key_unit(v.path) for v in varies}
         if any(r["time_to_target_s"] is not None for r in rows) and isinstance(varies[0].values[0], int | float):
             sweep_plot(rows, [v.path for v in varies], folder / "sweep.png",
-                       title=f"sweep of {name} (other inputs as in the case)")
+                       title=f"sweep of {name} (other inputs as in the case)", units=units)
             plot = "sweep.png"
-        write_sweep_report(folder, f"Sweep of {name}", [v.path for v in varies], rows, plot)
+        write_sweep_report(folder, f"Sweep of {name}", [v.path for v in varies], rows, plot, units=units)
         info = {"case_file": str(case.path) if case.path else None, "case_sha256": case.sha256,
                 "vary": {v.path: list(v.values) for v in varies}, "rows": rows}
         atomic_write_text(folder / "sweep.json", json.dumps(info, indent=2))

@@ -91,3 +91,26 @@ def test_two_sweeps_are_compared_run_by_run(tmp_path):
     sweep(case, [Vary("room.air_speed", (0.1, 0.5))], tmp_path / "other")
     grid = compare(tmp_path / "other", tmp_path / "base")
     assert not grid.passed and grid.checks[0].quantity.startswith("sweep grid")
+
+
+def test_table_has_units_separate_differences_and_fits_a_terminal(baseline, tmp_path):
+    run(short(room={"relative_humidity": 0.5}, cap_water={"mode": "charge"}), tmp_path / "other", plots=False)
+    result = compare(tmp_path / "other", baseline)
+    table = result.table(100)
+    lines = table.splitlines()
+    assert lines[0].split() == ["quantity", "unit", "baseline", "new", "abs", "diff", "rel", "diff", "tolerance",
+                                "verdict"]
+    assert max(len(line) for line in lines) <= 100
+    row = next(line for line in lines if line.startswith("max pressure drop"))
+    fields = row.split()
+    assert fields[3] == "Pa"
+    b, n = float(fields[4]), float(fields[5])
+    assert float(fields[6]) == pytest.approx(n - b, rel=1e-2)            # absolute, new - baseline
+    assert float(fields[7]) == pytest.approx((n - b) / b, rel=5e-2)      # relative, in its own column
+    # the history row's "new" is the new run's own largest value, not an interpolation
+    check = next(c for c in result.checks if c.quantity.startswith("history pressure_drop_pa"))
+    summary = json.loads((tmp_path / "other" / "summary.json").read_text())
+    assert check.new == pytest.approx(summary["max_pressure_drop_pa"], rel=1e-9)
+    assert any("differ in kind" in w and "cap_water.mode" in w for w in result.warnings)
+    assert "WARNING: the cases differ in kind" in table
+    assert compare(tmp_path / "other", tmp_path / "other").warnings == []

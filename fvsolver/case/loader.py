@@ -132,6 +132,14 @@ class Validator:
 
     def check(self, key: Key, value: Any, path: str) -> Any:
         kind = key.kind
+        if kind == "number" and isinstance(value, str):  # a value with its unit, e.g. "1.2 mm"
+            from fvsolver.case.units import to_schema_unit
+
+            try:
+                value = to_schema_unit(value, key.unit)
+            except ValueError as exc:
+                self.error(path, f"got {excerpt(value)}: {exc}")
+                return value
         if kind == "number":
             if not _is_number(value):
                 self.error(path, f"got {excerpt(value)}, expected {_describe(key)}")

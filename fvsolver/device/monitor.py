@@ -109,8 +109,8 @@ class DeviceMonitor:
                 f"the room is too humid: at {room.air_temperature - 273.15:.1f} C and "
                 f"{100 * room.relative_humidity:.0f} % relative humidity a fully wet cap with no heat from "
                 f"inside settles at {t_ws - 273.15:.2f} C ({depression:.2f} K below the air; wet-bulb "
-                f"{t_wb - 273.15:.2f} C), which allows at most about {max(limit, 0.0):.0f} Pa against the "
-                f"target {target:.0f} Pa")
+                f"{t_wb - 273.15:.2f} C), which allows at most about {_pressure(max(limit, 0.0))} "
+                f"against the target {_pressure(target)}")
         if self.dried_out_time is not None:
             reasons.append(f"the cap dried out at t = {self.dried_out_time:.0f} s")
         extra = sum(room.extra_flux.values())
@@ -123,8 +123,8 @@ class DeviceMonitor:
                            "than the room")
         if not reasons:
             reasons.append(f"the end time ({end_time:.0f} s) came first")
-        best = (f"; the largest difference reached was {self.max_pressure_drop:.0f} Pa at "
-                f"t = {self.max_pressure_drop_time:.0f} s (target {target:.0f} Pa)")
+        best = (f"; the largest difference reached was {_pressure(self.max_pressure_drop)} at "
+                f"t = {self.max_pressure_drop_time:.0f} s (target {_pressure(target)})")
         return "; ".join(reasons) + best
 
     def warnings(self) -> list[str]:
@@ -163,6 +163,15 @@ class DeviceMonitor:
             row["condensation_rate_kg_s"] = 0.0
         row["condensate_kg"] = float(np.dot(p.inner_area, y[p.i_c]))
         return row
+
+
+def _pressure(pa: float) -> str:
+    """A pressure as the report and the plots write it (one number, one spelling everywhere):
+    Pa below 1 kPa (3 significant digits below 10 Pa), else kPa."""
+    a = abs(pa)
+    if a < 1e3:
+        return f"{pa:.0f} Pa" if a >= 10 else f"{pa:.3g} Pa"
+    return f"{pa / 1e3:.3g} kPa" if a < 1e5 else f"{pa / 1e3:.1f} kPa"
 
 
 def wet_surface_temperature(problem) -> float:

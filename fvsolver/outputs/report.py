@@ -240,6 +240,8 @@ def result_paragraph(summary: Mapping) -> str:
         sentence = _balance_sentence(name, summary.get(key))
         if sentence:
             sentences.append(sentence)
+    for text in summary.get("input_warnings") or []:
+        sentences.append(f"Check the input: {str(text).rstrip('.')}.")
     warnings = summary.get("warnings") or []
     if isinstance(warnings, str):
         warnings = [warnings]

@@ -13,7 +13,7 @@ SWEEP_REPORT_NAME = "sweep.md"
 
 def _value(v) -> str:
     if isinstance(v, float):
-        return f"{v:.6g}"
+        return f"{v:.6g}"  # never float noise such as 0.6000000000000001
     return str(v)
 
 
@@ -46,7 +46,7 @@ def _summary_paragraph(rows: Sequence[Mapping], keys: Sequence[str]) -> str:
 
 
 def write_sweep_report(folder: str | os.PathLike, title: str, keys: Sequence[str], rows: Sequence[Mapping],
-                       plot: str | None) -> Path:
+                       plot: str | None, units: Mapping[str, str] | None = None) -> Path:
     """Write ``sweep.md`` into ``folder`` (atomically) and return its path.
 
     Parameters
@@ -55,10 +55,13 @@ def write_sweep_report(folder: str | os.PathLike, title: str, keys: Sequence[str
     keys : the swept key paths, in the order of the grid
     rows : the sweep's rows (as :func:`fvsolver.sweeps.sweep` returns them)
     plot : the sweep plot's file name relative to ``folder``, or None
+    units : key path -> unit, shown in the table's heading
     """
     folder = Path(folder)
     lines = [f"# {title}", "", "## Result", "", _summary_paragraph(rows, keys), ""]
-    head = ["run", *keys, "outcome", "largest internal pressure", "largest glass temperature", "warnings", "folder"]
+    units = units or {}
+    head = ["run", *(f"{k} ({units[k]})" if units.get(k) else k for k in keys), "outcome",
+            "largest internal pressure", "largest glass temperature", "warnings", "folder"]
     lines += ["| " + " | ".join(_cell(h) for h in head) + " |", "|" + "---|" * len(head)]
     for r in rows:
         glass = r.get("max_glass_temperature_k")
