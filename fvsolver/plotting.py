@@ -562,3 +562,35 @@ def envelope_plot(temperatures: np.ndarray, humidities: np.ndarray, values: np.n
     if title:
         ax.set_title(title, fontsize=10)
     _save(fig, path)
+
+
+def fit_plot(time: np.ndarray, measured: Mapping[str, np.ndarray], computed: Mapping[str, np.ndarray], path: Path,
+             title: str = "") -> None:
+    """Measured (markers) and computed (line) against time, one column per quantity, with the
+    residuals (computed - measured) below.
+
+    Parameters
+    ----------
+    time : (m,) s, the measured times
+    measured, computed : name -> (m,) values at those times (same names)
+    """
+    names = list(measured)
+    fig, axes = plt.subplots(2, len(names), figsize=(5.2 * len(names), 5.4), squeeze=False, sharex="col",
+                             height_ratios=(2.2, 1.0), layout="constrained")
+    for k, name in enumerate(names):
+        top, bottom = axes[0, k], axes[1, k]
+        m = np.asarray(measured[name], float)
+        c = np.asarray(computed[name], float)
+        top.plot(time, m, ls="none", marker="o", ms=3.5, mfc="none", mec="0.25", label="measured")
+        top.plot(time, c, lw=1.6, color="#1f77b4", label="computed (fitted)")
+        top.set_ylabel(name)
+        top.grid(True, lw=0.4, alpha=0.45)
+        top.legend(fontsize=8, frameon=False)
+        bottom.axhline(0.0, color="0.5", lw=0.8)
+        bottom.plot(time, c - m, ls="none", marker=".", ms=4, color="#c0392b")
+        bottom.set_ylabel("computed - measured")
+        bottom.set_xlabel("time (s)")
+        bottom.grid(True, lw=0.4, alpha=0.45)
+    if title:
+        fig.suptitle(title, fontsize=10)
+    _save(fig, path)
