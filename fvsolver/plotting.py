@@ -533,12 +533,18 @@ def envelope_plot(temperatures: np.ndarray, humidities: np.ndarray, values: np.n
     V = np.asarray(values, float).T + offset  # (n_h, n_t): rows along humidity
     runs = np.isfinite(V)
     fig, ax = plt.subplots(figsize=(7.4, 5.0), layout="constrained")
-    if runs.sum() >= 2 and np.nanmax(V) > np.nanmin(V):
-        levels = matplotlib.ticker.MaxNLocator(nbins=10).tick_values(np.nanmin(V), np.nanmax(V))
-        filled = ax.contourf(t_c, rh, np.ma.masked_invalid(V), levels=levels, cmap="viridis", extend="neither")
-        fig.colorbar(filled, ax=ax, label=label)
-    elif runs.any():  # one value only: shade the cells that run
-        ax.pcolormesh(t_c, rh, np.ma.masked_invalid(V), cmap="viridis", shading="nearest")
+    cmap = plt.get_cmap("viridis")
+    norm = None
+    if runs.any():
+        low, high = np.nanmin(V), np.nanmax(V)
+        if high > low:
+            levels = matplotlib.ticker.MaxNLocator(nbins=10).tick_values(low, high)
+            norm = matplotlib.colors.BoundaryNorm(levels, cmap.N)
+            # contours fill the cells whose four corners all run; the markers carry every value
+            ax.contourf(t_c, rh, np.ma.masked_invalid(V), levels=levels, cmap=cmap, norm=norm)
+        else:
+            norm = Normalize(low - 0.5 * max(abs(low), 1.0), high + 0.5 * max(abs(high), 1.0))
+        fig.colorbar(matplotlib.cm.ScalarMappable(norm=norm, cmap=cmap), ax=ax, label=label)
     stops = ~runs & np.asarray(completed, bool).T
     if runs.any() and stops.any():
         indicator = np.ma.masked_array(runs.astype(float), mask=~(runs | stops))
@@ -550,9 +556,14 @@ def envelope_plot(temperatures: np.ndarray, humidities: np.ndarray, values: np.n
     for k, kind in enumerate(kinds):
         sel = O == kind
         marker = _OUTCOME_MARKERS[k % len(_OUTCOME_MARKERS)]
-        ran = runs[sel].all()
-        ax.plot(TT[sel], HH[sel], ls="none", marker=marker, ms=6.5 if ran else 7.5,
-                mfc="white" if ran else "#c0392b", mec="black", mew=0.8, label=kind)
+        ran = sel & runs
+        if ran.any():  # filled with the run's own value
+            ax.scatter(TT[ran], HH[ran], c=V[ran], cmap=cmap, norm=norm, marker=marker, s=46, edgecolors="black",
+                       linewidths=0.9, label=kind, zorder=3)
+        other = sel & ~runs
+        if other.any():
+            ax.scatter(TT[other], HH[other], c="#c0392b", marker=marker, s=58, edgecolors="black", linewidths=0.8,
+                       label=None if ran.any() else kind, zorder=3)
     ax.set_xlabel("room air temperature (°C)")
     ax.set_ylabel("relative humidity (%)")
     ax.set_xlim(t_c.min() - 0.03 * np.ptp(t_c), t_c.max() + 0.03 * np.ptp(t_c))
