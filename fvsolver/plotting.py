@@ -538,7 +538,13 @@ def envelope_plot(temperatures: np.ndarray, humidities: np.ndarray, values: np.n
     if runs.any():
         low, high = np.nanmin(V), np.nanmax(V)
         if high > low:
-            levels = matplotlib.ticker.MaxNLocator(nbins=10).tick_values(low, high)
+            if low > 0 and high / low > 10:  # over a decade or more (seconds to minutes): log-spaced levels
+                decades = np.arange(np.floor(np.log10(low)), np.ceil(np.log10(high)) + 1)
+                ladder = (10.0 ** decades[:, None] * np.array([1.0, 2.0, 5.0])).ravel()
+                # the ladder's steps from the last at or below the lowest value to the first at or above the highest
+                levels = ladder[np.searchsorted(ladder, low, "right") - 1: np.searchsorted(ladder, high, "left") + 1]
+            else:
+                levels = matplotlib.ticker.MaxNLocator(nbins=10).tick_values(low, high)
             norm = matplotlib.colors.BoundaryNorm(levels, cmap.N)
             # contours fill the cells whose four corners all run; the markers carry every value
             ax.contourf(t_c, rh, np.ma.masked_invalid(V), levels=levels, cmap=cmap, norm=norm)
