@@ -151,6 +151,8 @@ def read_measured(path: str | Path) -> Measured:
 def _changes(keys: Sequence[FitKey], x: np.ndarray, measured: Measured, case: Case) -> dict:
     changes = {k.path: float(v) for k, v in zip(keys, x)}
     changes["time.end"] = float(measured.time[-1])
+    changes["output.field_times"] = []  # a trial writes no fields (and the case's times may lie past the end)
+    changes["output.field_count"] = 0
     if "target" in case.data:
         changes["target.stop_when_reached"] = False  # the whole measured history is wanted
     return changes
