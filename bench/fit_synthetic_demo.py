@@ -19,9 +19,8 @@ import numpy as np
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
 from fvsolver.case import load_case  # noqa: E402
-from fvsolver.case.loader import with_changes  # noqa: E402
 from fvsolver.cli import main as cli  # noqa: E402
-from fvsolver.pipeline import run  # noqa: E402
+from fvsolver.studies.fit import FitKey, Measured, Model  # noqa: E402
 
 TRUTH = {"room.air_speed": 0.35, "cap.fibre_conductivity": 0.3}
 NOISE = {"pressure_drop_pa": 2.0, "mean_cap_temperature_k": 0.005}  # standard deviations
@@ -31,23 +30,24 @@ FITS = ["room.air_speed=0.05:1.5", "cap.fibre_conductivity=0.05:1.0"]
 def main() -> int:
     p = argparse.ArgumentParser(description=__doc__.split("\n")[0])
     p.add_argument("--case", default="cases/demo.toml")
-    p.add_argument("--end", type=float, default=60.0, help="last measured time, s")
+    p.add_argument("--end", type=float, default=40.0, help="last measured time, s")
     p.add_argument("--out", type=Path, default=Path("fit_synthetic_demo"))
     a = p.parse_args()
     case = load_case(a.case)
-    history = run(with_changes(case, {**TRUTH, "time.end": a.end, "target.stop_when_reached": False,
-                                             "output.field_times": [], "output.field_count": 0}), None,
-                  plots=False).history
+    times = np.linspace(2.0, a.end, 20)
+    # the fit's own model at the chosen values (same steps and sampling as its trials), plus noise
+    keys = [FitKey(k, 0.5 * v, 2.0 * v, v) for k, v in TRUTH.items()]
+    clean = Model(case, keys, Measured(times, {n: np.zeros(times.size) for n in NOISE})).computed(
+        np.array(list(TRUTH.values())))
     rng = np.random.default_rng(20261203)
-    times = np.linspace(2.0, a.end, 30)
     a.out.mkdir(parents=True, exist_ok=True)
     data = a.out / "MEASURED.csv"
     lines = ["# SYNTHETIC history made by fvsolver from " + a.case + " with "
              + ", ".join(f"{k} = {v}" for k, v in TRUTH.items()) + " plus seeded Gaussian noise ("
              + ", ".join(f"{k} sd {v}" for k, v in NOISE.items()) + "); not a measurement",
              "time_s," + ",".join(NOISE)]
-    for t in times:
-        values = [float(np.interp(t, history["time_s"], history[n])) + rng.normal(0.0, s) for n, s in NOISE.items()]
+    for i, t in enumerate(times):
+        values = [float(clean[n][i]) + rng.normal(0.0, s) for n, s in NOISE.items()]
         lines.append(f"{float(t)!r}," + ",".join(repr(v) for v in values))
     data.write_text("\n".join(lines) + "\n")
     args = ["fit", a.case, "--data", str(data), "--out", str(a.out / "fit"), "--overwrite"]

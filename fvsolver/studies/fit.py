@@ -3,7 +3,8 @@
 The measured history is a CSV with a ``time_s`` column and one or more columns named as in a
 run's history.csv (``pressure_drop_pa``, ``mean_cap_temperature_k``, ...). Each trial runs the
 case with the fitted keys changed, to the last measured time (a target does not stop it), and
-compares the computed columns at the measured times. The keys are fitted by bounded nonlinear
+compares the computed columns at the measured times (each trial's steps are no longer than the
+measured spacing, so that the interpolated history moves smoothly with the keys). The keys are fitted by bounded nonlinear
 least squares (``scipy.optimize.least_squares``, trust-region reflective); each column's
 residuals are divided by the measured column's range so that columns in different units weigh
 alike. Confidence intervals come from the Jacobian at the optimum:
@@ -150,6 +151,10 @@ def read_measured(path: str | Path) -> Measured:
 
 def _changes(keys: Sequence[FitKey], x: np.ndarray, measured: Measured, case: Case) -> dict:
     changes = {k.path: float(v) for k, v in zip(keys, x)}
+    # a step no longer than the measured spacing: the history is read between steps by linear
+    # interpolation, and long steps whose ends move with the keys would make the computed
+    # values jump (no derivative, no interval)
+    changes["numerics.max_step"] = min(float(case["numerics"]["max_step"]), float(np.min(np.diff(measured.time))))
     changes["time.end"] = float(measured.time[-1])
     changes["output.field_times"] = []  # a trial writes no fields (and the case's times may lie past the end)
     changes["output.field_count"] = 0
