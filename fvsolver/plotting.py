@@ -638,12 +638,24 @@ def envelope_plot(temperatures: np.ndarray, humidities: np.ndarray, values: np.n
     V = np.asarray(values, float).T + offset  # (n_h, n_t): rows along humidity
     runs = np.isfinite(V)
     fig, ax = plt.subplots(figsize=(7.4, 5.0), layout="constrained")
-    if runs.sum() >= 2 and np.nanmax(V) > np.nanmin(V):
-        levels = matplotlib.ticker.MaxNLocator(nbins=10).tick_values(np.nanmin(V), np.nanmax(V))
-        filled = ax.contourf(t_c, rh, np.ma.masked_invalid(V), levels=levels, cmap="viridis", extend="neither")
-        fig.colorbar(filled, ax=ax, label=label)
-    elif runs.any():  # one value only: shade the cells that run
-        ax.pcolormesh(t_c, rh, np.ma.masked_invalid(V), cmap="viridis", shading="nearest")
+    cmap = plt.get_cmap("viridis")
+    norm = None
+    if runs.any():
+        low, high = np.nanmin(V), np.nanmax(V)
+        if high > low:
+            if low > 0 and high / low > 10:  # over a decade or more (seconds to minutes): log-spaced levels
+                decades = np.arange(np.floor(np.log10(low)), np.ceil(np.log10(high)) + 1)
+                ladder = (10.0 ** decades[:, None] * np.array([1.0, 2.0, 5.0])).ravel()
+                # the ladder's steps from the last at or below the lowest value to the first at or above the highest
+                levels = ladder[np.searchsorted(ladder, low, "right") - 1: np.searchsorted(ladder, high, "left") + 1]
+            else:
+                levels = matplotlib.ticker.MaxNLocator(nbins=10).tick_values(low, high)
+            norm = matplotlib.colors.BoundaryNorm(levels, cmap.N)
+            # contours fill the cells whose four corners all run; the markers carry every value
+            ax.contourf(t_c, rh, np.ma.masked_invalid(V), levels=levels, cmap=cmap, norm=norm)
+        else:
+            norm = Normalize(low - 0.5 * max(abs(low), 1.0), high + 0.5 * max(abs(high), 1.0))
+        fig.colorbar(matplotlib.cm.ScalarMappable(norm=norm, cmap=cmap), ax=ax, label=label)
     stops = ~runs & np.asarray(completed, bool).T
     if runs.any() and stops.any():
         indicator = np.ma.masked_array(runs.astype(float), mask=~(runs | stops))
@@ -655,9 +667,14 @@ def envelope_plot(temperatures: np.ndarray, humidities: np.ndarray, values: np.n
     for k, kind in enumerate(kinds):
         sel = O == kind
         marker = _OUTCOME_MARKERS[k % len(_OUTCOME_MARKERS)]
-        ran = runs[sel].all()
-        ax.plot(TT[sel], HH[sel], ls="none", marker=marker, ms=6.5 if ran else 7.5,
-                mfc="white" if ran else "#c0392b", mec="black", mew=0.8, label=kind)
+        ran = sel & runs
+        if ran.any():  # filled with the run's own value
+            ax.scatter(TT[ran], HH[ran], c=V[ran], cmap=cmap, norm=norm, marker=marker, s=46, edgecolors="black",
+                       linewidths=0.9, label=kind, zorder=3)
+        other = sel & ~runs
+        if other.any():
+            ax.scatter(TT[other], HH[other], c="#c0392b", marker=marker, s=58, edgecolors="black", linewidths=0.8,
+                       label=None if ran.any() else kind, zorder=3)
     ax.set_xlabel("room air temperature (°C)")
     ax.set_ylabel("relative humidity (%)")
     ax.set_xlim(t_c.min() - 0.03 * np.ptp(t_c), t_c.max() + 0.03 * np.ptp(t_c))
@@ -666,4 +683,36 @@ def envelope_plot(temperatures: np.ndarray, humidities: np.ndarray, values: np.n
               ncol=min(4, len(kinds)), frameon=False)
     if title:
         ax.set_title(title, fontsize=10)
+    _save(fig, path)
+
+
+def fit_plot(time: np.ndarray, measured: Mapping[str, np.ndarray], computed: Mapping[str, np.ndarray], path: Path,
+             title: str = "") -> None:
+    """Measured (markers) and computed (line) against time, one column per quantity, with the
+    residuals (computed - measured) below.
+
+    Parameters
+    ----------
+    time : (m,) s, the measured times
+    measured, computed : name -> (m,) values at those times (same names)
+    """
+    names = list(measured)
+    fig, axes = plt.subplots(2, len(names), figsize=(5.2 * len(names), 5.4), squeeze=False, sharex="col",
+                             height_ratios=(2.2, 1.0), layout="constrained")
+    for k, name in enumerate(names):
+        top, bottom = axes[0, k], axes[1, k]
+        m = np.asarray(measured[name], float)
+        c = np.asarray(computed[name], float)
+        top.plot(time, m, ls="none", marker="o", ms=3.5, mfc="none", mec="0.25", label="measured")
+        top.plot(time, c, lw=1.6, color="#1f77b4", label="computed (fitted)")
+        top.set_ylabel(name)
+        top.grid(True, lw=0.4, alpha=0.45)
+        top.legend(fontsize=8, frameon=False)
+        bottom.axhline(0.0, color="0.5", lw=0.8)
+        bottom.plot(time, c - m, ls="none", marker=".", ms=4, color="#c0392b")
+        bottom.set_ylabel("computed - measured")
+        bottom.set_xlabel("time (s)")
+        bottom.grid(True, lw=0.4, alpha=0.45)
+    if title:
+        fig.suptitle(title, fontsize=10)
     _save(fig, path)

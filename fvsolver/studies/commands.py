@@ -6,6 +6,7 @@ import argparse
 import contextlib
 from pathlib import Path
 
+from fvsolver.errors import CaseError
 from fvsolver.pipeline import EXIT_OK, EXIT_SOLVER
 
 HELP = {
@@ -94,6 +95,13 @@ def add_commands(sub, epilog: str) -> None:
                            help="summary results to analyse (repeat; default time_to_target_s, period_s, "
                                 "min_temperature_k, max_temperature_k, where present)")
             add_engine_options(s)
+        if name == "fit":
+            s.add_argument("--data", type=Path, required=True, metavar="MEASURED.csv",
+                           help="measured history: time_s and columns named as in history.csv")
+            s.add_argument("--fit", action="append", required=True, metavar="KEY[=LOW:HIGH]",
+                           help="a case key to fit, with bounds (default: a tenth to ten times its value); repeat")
+            s.add_argument("--max-runs", type=int, default=60, metavar="N",
+                           help="stop after this many model runs (default 60)")
 
 
 def _envelope(args, say) -> int:
@@ -147,9 +155,35 @@ def _converge(args, say) -> int:
     return EXIT_SOLVER if failed else EXIT_OK
 
 
+def _fit(args, say) -> int:
+    from fvsolver.case import load_case
+    from fvsolver.pipeline import prepare_output
+    from fvsolver.studies.fit import fit, parse_fit, read_measured, write_fit_outputs
+
+    case = load_case(args.case)
+    keys = [parse_fit(text, case) for text in args.fit]
+    data = read_measured(args.data)
+    if args.max_runs < len(keys) + 2:
+        raise CaseError(f"--max-runs: got {args.max_runs}, expected at least {len(keys) + 2} (a start and a "
+                        "Jacobian need that many runs)")
+    out = prepare_output(args.out or Path("results") / f"{args.case.stem}_fit", args.overwrite)
+
+    def progress(runs, values, residuals):
+        what = ", ".join(f"{k} = {v:.6g}" for k, v in values.items())
+        say(f"  run {runs}: {what}: scaled residual rms {float((residuals ** 2).mean()) ** 0.5:.4g}")
+
+    res = fit(case, data, keys, max_runs=args.max_runs, progress=progress)
+    write_fit_outputs(out, args.case.name, args.data.name, data, res)
+    for k, v, (lo, hi), b in zip(res.keys, res.values, res.intervals, res.at_bound):
+        say(f"{k.path} = {v:.6g} (95 % interval {lo:.6g} to {hi:.6g})" + (" ON ITS BOUND" if b else ""))
+    say(f"{res.runs} runs; {res.status}")
+    say(f"report in {out / 'fit.md'}, plot in {out / 'fit.png'}")
+    return EXIT_OK
+
+
 def handlers(say_for) -> dict:
     """The command name -> handler(args) map; ``say_for(args)`` gives the print function."""
     def wrap(function):
         return lambda args: function(args, say_for(args))
-    return {"envelope": wrap(_envelope), "converge": wrap(_converge)}
+    return {"envelope": wrap(_envelope), "converge": wrap(_converge), "fit": wrap(_fit)}
 
