@@ -8,7 +8,7 @@ from pathlib import Path
 
 from fvsolver import __version__
 from fvsolver.errors import CaseError, FvsolverError, MeshError, SolverError
-from fvsolver.pipeline import EXIT_CASE, EXIT_INTERNAL, EXIT_INTERRUPTED, EXIT_OK, EXIT_SOLVER
+from fvsolver.exit_codes import EXIT_CASE, EXIT_INTERNAL, EXIT_INTERRUPTED, EXIT_OK, EXIT_SOLVER
 
 EXIT_DIFFERS = 1  # compare: a difference beyond its tolerance (as diff does)
 

@@ -20,7 +20,7 @@ from fvsolver.errors import CaseError, SolverError
 from fvsolver.outputs.files import atomic_write_text
 from fvsolver.stepper import TimeStepper
 
-EXIT_OK, EXIT_CASE, EXIT_SOLVER, EXIT_INTERNAL, EXIT_INTERRUPTED = 0, 2, 3, 4, 130
+from fvsolver.exit_codes import EXIT_CASE, EXIT_INTERNAL, EXIT_INTERRUPTED, EXIT_OK, EXIT_SOLVER  # noqa: E402,F401
 
 
 @dataclass
