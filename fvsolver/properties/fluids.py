@@ -46,6 +46,11 @@ class PropertyRangeWarning(UserWarning):
 def _array(value: ArrayLike, name: str, unit: str) -> NDArray[np.float64]:
     """Return a float array, raising on non-finite or non-positive entries."""
     arr = np.asarray(value, dtype=float)
+    if arr.size == 0:
+        return arr
+    lo, hi = (float(arr), float(arr)) if arr.ndim == 0 else (float(arr.min()), float(arr.max()))
+    if lo > 0.0 and hi < np.inf:  # NaN fails both comparisons: the full check below reports it
+        return arr
     bad = ~np.isfinite(arr) | (arr <= 0.0)
     if np.any(bad):
         first = float(np.ravel(arr[bad])[0])
@@ -189,11 +194,15 @@ class WorkingFluid:
     def _temperature(self, T: ArrayLike, quantity: str, low: float, high: float) -> NDArray[np.float64]:
         """Validate T, refusing supercritical values and warning outside [low, high]."""
         t = _array(T, "T", "K")
-        if np.any(t > self.critical_temperature):
+        if t.size == 0:
+            return t
+        t_lo, t_hi = (float(t), float(t)) if t.ndim == 0 else (float(t.min()), float(t.max()))
+        if t_hi > self.critical_temperature:
             raise PropertyError(
-                f"{self.name}: {quantity} asked at T = {float(np.max(t)):.10g} K; expected T below the critical "
+                f"{self.name}: {quantity} asked at T = {t_hi:.10g} K; expected T below the critical "
                 f"temperature {self.critical_temperature} K, where no liquid exists; lower the temperature")
-        self._warn_outside(t, quantity, low, high, stacklevel=4)
+        if t_lo < low or t_hi > high:  # the range is looked at once; the warning's details only when needed
+            self._warn_outside(t, quantity, low, high, stacklevel=4)
         return t
 
     def _warn_outside(self, values: NDArray[np.float64], quantity: str, low: float, high: float,
