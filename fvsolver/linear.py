@@ -204,6 +204,19 @@ class Factoriser:
         self._order: np.ndarray | None = None
         self.orderings = 0  # fresh orderings computed (a counter for tests and benchmarks)
 
+    def state(self) -> dict | None:
+        """The remembered pattern (CSC ``indptr``, ``indices``) and ``order``, for a checkpoint."""
+        if self._order is None:
+            return None
+        return {"indptr": self._pattern.indptr, "indices": self._pattern.indices, "order": self._order}
+
+    def restore(self, indptr: np.ndarray, indices: np.ndarray, order: np.ndarray) -> None:
+        """Take back a pattern and ordering from :meth:`state` (a resumed run rounds as the first did)."""
+        m = len(indptr) - 1
+        self._pattern = sp.csc_matrix((np.zeros(len(indices)), np.asarray(indices), np.asarray(indptr)), shape=(m, m))
+        self._keys = _keys(self._pattern)
+        self._order = np.asarray(order)
+
     def _same_pattern(self, a: sp.csc_matrix) -> bool:
         p = self._pattern
         return (p is not None and a.shape == p.shape and a.indptr.shape == p.indptr.shape
