@@ -115,3 +115,16 @@ def test_weak_lumped_rows_are_scaled_so_the_pivots_stay_on_the_diagonal(rng):
 def test_dominant_matrices_keep_superlus_own_solve():
     lu = Factoriser()(laplacian(10))
     assert lu.row_scale is None and lu.solve == lu.lu.solve
+
+
+def test_a_restored_factoriser_keeps_the_pattern_and_ordering(rng):
+    A = laplacian(12)
+    first = Factoriser()
+    first(A)
+    state = first.state()
+    again = Factoriser()
+    again.restore(state["indptr"], state["indices"], state["order"])
+    b = rng.normal(size=A.shape[0])
+    lu = again(A)
+    assert again.orderings == 0 and lu.order is not None  # the kept ordering, not a fresh one
+    assert np.allclose(A @ solve(lu, b), b, atol=1e-10)
