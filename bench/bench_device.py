@@ -12,7 +12,13 @@ measures, in one process:
   (bordered, with the ordering a ``linear.Factoriser`` keeps for the run's pattern: what the
   stepper does now). Ratios are printed against ``kept``, with each factor's fill;
 * the run itself: Newton iterations and factorisations per step, and the share of the
-  stepping time spent in evaluations, factorisations and solves.
+  stepping time spent in evaluations, factorisations and solves;
+* the run's cost per step against its floor: one factorisation of the same (bordered)
+  Jacobian by a bare ``splu`` with the best of several orderings, plus as many bare solves as
+  the run's Newton iterations per step.
+
+``--json FILE`` writes, per size, ``cells``, ``ms_per_step``, ``floor_ms_per_step``,
+``ratio_to_floor``, ``newton_per_step`` and ``newton_failures`` (and a few more fields).
 
 Run ``python bench/bench_device.py`` (about a minute on 2 cores), ``--factors 1,2,4,8``,
 ``--seconds 10``, ``--repeats 5``.
@@ -20,6 +26,7 @@ Run ``python bench/bench_device.py`` (about a minute on 2 cores), ``--factors 1,
 from __future__ import annotations
 
 import argparse
+import json
 import statistics
 import sys
 import time
@@ -76,13 +83,40 @@ def median_ms(fn, repeats: int) -> tuple[float, object]:
     return 1e3 * statistics.median(times), out
 
 
+FLOOR_ORDERINGS = ("MMD_AT_PLUS_A", "MMD_ATA", "COLAMD")
+
+
+def floor_costs(J, repeats: int) -> dict:
+    """Bare splu of the bordered Jacobian with each ordering (with and without SymmetricMode):
+    the cheapest factorisation and solve, ms (median of ``repeats`` each)."""
+    A = fv_linear._system(J)
+    b = np.random.default_rng(1).normal(size=A.shape[0])
+    best = None
+    for ordering in FLOOR_ORDERINGS:
+        for symmetric in (False, True):
+            kw = dict(permc_spec=ordering)
+            if symmetric:
+                kw.update(diag_pivot_thresh=0.1, options=dict(SymmetricMode=True))
+            try:
+                t_f, lu = median_ms(lambda: spla.splu(A, **kw), repeats)
+            except RuntimeError:
+                continue
+            t_s, _ = median_ms(lambda: lu.solve(b), max(repeats, 5))
+            label = ordering + ("+sym" if symmetric else "")
+            cand = dict(ordering=label, factor_ms=t_f, solve_ms=t_s, fill=int(lu.L.nnz + lu.U.nnz))
+            if best is None or t_f + t_s < best["factor_ms"] + best["solve_ms"]:
+                best = cand
+    return best
+
+
 def bench(factor: int, seconds: float, repeats: int) -> dict:
     setup = build(demo_case(factor, seconds))
     problem = setup.problem
     stepper = TimeStepper(problem, setup.initial, 0.0, seconds, setup.options)
     evaluate = Timed(problem.evaluate)
     problem.evaluate = evaluate
-    factorise = Timed(stepper._factorise)
+    keeper_run = stepper._factorise
+    factorise = Timed(keeper_run)
     stepper._factorise = factorise
     t0 = time.perf_counter()
     while stepper.step():
@@ -105,7 +139,14 @@ def bench(factor: int, seconds: float, repeats: int) -> dict:
     x_formed = lu_formed.solve(b)
     diff = float(np.max(np.abs(f_kept.solve(b) - x_formed)) / np.max(np.abs(x_formed)))
     assert diff < 1e-8, diff
+    floor = floor_costs(J, repeats)
+    newton_per_step = c.newton_iterations / c.steps
+    floor_ms = floor["factor_ms"] + newton_per_step * floor["solve_ms"]
+    ms_per_step = 1e3 * stepping / c.steps
     return dict(
+        ms_per_step=ms_per_step, floor_ms_per_step=floor_ms, ratio_to_floor=ms_per_step / floor_ms,
+        newton_per_step=newton_per_step, newton_failures=c.newton_failures, floor=floor,
+        orderings=keeper_run.orderings, time_to_end_s=stepper.t,
         cells=problem.n_cells, unknowns=problem.n, wall_faces=len(problem.inner),
         steps=c.steps, newton=c.newton_iterations, factorisations=c.factorisations,
         stepping=stepping, t_eval=evaluate.seconds, t_fact=factorise.seconds,
@@ -120,6 +161,7 @@ def main(argv=None) -> int:
     ap.add_argument("--factors", default="1,2,4,8", help="mesh refinement factors of the demo head")
     ap.add_argument("--seconds", type=float, default=10.0, help="simulated time before the Jacobian is taken")
     ap.add_argument("--repeats", type=int, default=5)
+    ap.add_argument("--json", type=Path, default=None, metavar="FILE", help="also write the per-size fields as JSON")
     args = ap.parse_args(argv)
     bench(1, 0.2, 1)  # warm-up: numba compiles its kernels on the first run
     rows = []
@@ -147,6 +189,23 @@ def main(argv=None) -> int:
         print(f"| {r['cells']} | {r['steps']} | {r['newton'] / r['steps']:.1f} | "
               f"{r['factorisations'] / r['steps']:.1f} | {s:.2f} | {r['t_eval'] / s:.0%} | "
               f"{r['t_fact'] / s:.0%} | {1 - (r['t_eval'] + r['t_fact']) / s:.0%} |")
+    print()
+    print("Cost per step against its floor (one bare splu of the same Jacobian, best ordering, plus the "
+          "run's Newton iterations per step in bare solves)")
+    print()
+    print("| cells | ms/step | floor ms/step | ratio to floor | Newton it/step | Newton failures | orderings "
+          "| floor ordering | floor factor ms | floor solve ms |")
+    print("|---:|---:|---:|---:|---:|---:|---:|---|---:|---:|")
+    for r in rows:
+        fl = r["floor"]
+        print(f"| {r['cells']} | {r['ms_per_step']:.1f} | {r['floor_ms_per_step']:.2f} | {r['ratio_to_floor']:.1f} | "
+              f"{r['newton_per_step']:.1f} | {r['newton_failures']} | {r['orderings']} | {fl['ordering']} | "
+              f"{fl['factor_ms']:.2f} | {fl['solve_ms']:.3f} |")
+    if args.json is not None:
+        keys = ("cells", "ms_per_step", "floor_ms_per_step", "ratio_to_floor", "newton_per_step", "newton_failures",
+                "unknowns", "steps", "orderings", "factorisations", "fill_kept", "time_to_end_s")
+        out = [{k: r[k] for k in keys} | {"floor": r["floor"]} for r in rows]
+        args.json.write_text(json.dumps({"seconds": args.seconds, "sizes": out}, indent=2) + "\n")
     return 0
 
 

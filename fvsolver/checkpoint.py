@@ -57,9 +57,9 @@ def save(folder: Path, stepper: TimeStepper, monitor, rows: list, field_entries:
         arrays["f0"] = stepper._f0
     if stepper._affine_rate is not None:  # carried from step to step: recomputing it differs in round-off
         arrays["affine_rate"] = stepper._affine_rate
-    order = stepper._factorise
-    if order._order is not None:  # the factor's ordering: a fresh one would round differently
-        arrays.update(factor_indptr=order._indptr, factor_indices=order._indices, factor_order=order._order)
+    order = stepper._factorise.state()
+    if order is not None:  # the factor's ordering: a fresh one would round differently
+        arrays.update(factor_indptr=order["indptr"], factor_indices=order["indices"], factor_order=order["order"])
     buf = io.BytesIO()
     np.savez(buf, **arrays)
     data = buf.getvalue()
@@ -239,8 +239,7 @@ def restore(stepper: TimeStepper, monitor, meta: dict, arrays: dict) -> None:
     stepper._last_evaluation = None
     stepper._affine_rate = arrays["affine_rate"].astype(float) if "affine_rate" in arrays else None
     if "factor_order" in arrays:
-        f = stepper._factorise
-        f._indptr, f._indices, f._order = (arrays["factor_indptr"], arrays["factor_indices"], arrays["factor_order"])
+        stepper._factorise.restore(arrays["factor_indptr"], arrays["factor_indices"], arrays["factor_order"])
     guess = arrays.get("surface_guess")
     _conduction(stepper.problem)._surface_guess = None if guess is None else guess.astype(float)
     if monitor is not None and meta["monitor"] is not None:

@@ -8,7 +8,7 @@ from pathlib import Path
 
 from fvsolver import __version__
 from fvsolver.errors import CaseError, FvsolverError, MeshError, SolverError
-from fvsolver.pipeline import EXIT_CASE, EXIT_INTERNAL, EXIT_INTERRUPTED, EXIT_OK, EXIT_SOLVER
+from fvsolver.exit_codes import EXIT_CASE, EXIT_INTERNAL, EXIT_INTERRUPTED, EXIT_OK, EXIT_SOLVER
 from fvsolver.safeguards import Terminated, stop_signals_as_interrupt
 from fvsolver.studies.commands import add_commands as add_study_commands
 from fvsolver.studies.commands import add_engine_options, open_engine

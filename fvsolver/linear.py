@@ -14,7 +14,19 @@ A :class:`Factoriser` factorises a sequence of matrices of one sparsity pattern 
 Jacobians of a run): it computes the fill-reducing ordering once and hands SuperLU the
 symmetrically permuted matrix afterwards, which saves the ordering's share of each
 factorisation (about 40 % on the device head). Pivoting is still SuperLU's, so any matrix of
-the pattern is factorised correctly; only its fill could differ from a fresh ordering's.
+the pattern is factorised correctly; only its fill could differ from a fresh ordering's. The
+pattern it keeps is the union of those it has seen: an entry that is exactly zero in one
+Jacobian (a wall face that stops re-evaporating) stays in as an explicit zero, so the
+ordering is not computed again when faces switch.
+
+Rows whose diagonal is weaker than the largest other entry of its column (the lumped
+unknowns' rows: a vapour mass in kg beside energies in J) are scaled up before the
+factorisation, as far as the row's other entries allow, so that SuperLU's threshold test
+keeps the diagonal pivots the ordering planned for:
+
+.. math:: (R A)\\, x = R\\, b, \\qquad R = \\mathrm{diag}(\\rho), \\quad \\rho_j \\ge 1,
+
+which changes the solution only at round-off level and keeps the fill of the ordering.
 """
 from __future__ import annotations
 
@@ -77,11 +89,12 @@ class Factor:
     ``solve(rhs)`` returns x with ``matrix @ x = rhs`` for the matrix that was factorised.
     """
 
-    def __init__(self, lu: spla.SuperLU, n: int, order: np.ndarray | None = None):
-        self.lu, self.n, self.order = lu, n, order
+    def __init__(self, lu: spla.SuperLU, n: int, order: np.ndarray | None = None,
+                 row_scale: np.ndarray | None = None):
+        self.lu, self.n, self.order, self.row_scale = lu, n, order, row_scale
         self._m = lu.shape[0]
-        # the plain case (not bordered, not pre-ordered) is SuperLU's own solve, nothing around it
-        if self._m == n and order is None:
+        # the plain case (not bordered, pre-ordered or scaled) is SuperLU's own solve, nothing around it
+        if self._m == n and order is None and row_scale is None:
             self.solve = lu.solve
 
     @property
@@ -96,6 +109,8 @@ class Factor:
     def solve(self, rhs: np.ndarray) -> np.ndarray:
         m = self._m
         b = rhs if m == self.n else np.concatenate([rhs, np.zeros(m - self.n)])
+        if self.row_scale is not None:
+            b = b * self.row_scale
         if self.order is None:
             return self.lu.solve(b)[: self.n]
         x = np.empty(m)
@@ -119,41 +134,129 @@ def _system(matrix: sp.spmatrix | LowRankUpdate) -> sp.csc_matrix:
     return a
 
 
+def row_scale(a: sp.csc_matrix) -> np.ndarray | None:
+    """Row factors rho >= 1 that lift weak diagonals to their column's largest other entry.
+
+    Row j is scaled by ``min(colmax_j / |a_jj|, min_k |a_kk| / |a_jk|)``: far enough for its
+    diagonal to pass SuperLU's threshold test, and no further than keeps every other column's
+    diagonal at least as large as row j's scaled entry in it. ``None`` when no row needs it.
+
+    a : (m, m) canonical CSC (sorted indices, no duplicates)
+    """
+    m = a.shape[0]
+    counts = np.diff(a.indptr)
+    cols = np.repeat(np.arange(m), counts)
+    rows = a.indices
+    mag = np.abs(a.data)
+    other = rows != cols
+    diag = np.zeros(m)
+    diag[cols[~other]] = mag[~other]
+    colmax = np.zeros(m)
+    np.maximum.at(colmax, cols[other], mag[other])
+    weak = (colmax > diag) & (diag > 0.0)
+    if not weak.any():
+        return None
+    # how large row j's entries are against the diagonals of their columns
+    sel = other & weak[rows] & (diag[cols] > 0.0)
+    reach = np.zeros(m)
+    with np.errstate(over="ignore"):
+        np.maximum.at(reach, rows[sel], mag[sel] / diag[cols[sel]])
+        want = np.ones(m)
+        want[weak] = colmax[weak] / diag[weak]
+        cap = np.full(m, np.inf)
+        cap[reach > 0.0] = 1.0 / reach[reach > 0.0]
+    rho = np.maximum(np.minimum(want, cap), 1.0)
+    rho[~np.isfinite(rho)] = 1.0
+    return rho if np.any(rho > 1.0) else None
+
+
 def factorise(matrix: sp.spmatrix | LowRankUpdate) -> Factor:
     """LU factors of ``matrix`` with a fresh ordering; a singular matrix raises SolverError."""
     return Factoriser()(matrix)
 
 
+def _keys(a: sp.csc_matrix) -> np.ndarray:
+    """Sorted (column, row) keys of a canonical CSC pattern."""
+    cols = np.repeat(np.arange(a.shape[1], dtype=np.int64), np.diff(a.indptr))
+    return cols * a.shape[0] + a.indices
+
+
+def _from_keys(keys: np.ndarray, shape: tuple[int, int]) -> sp.csc_matrix:
+    """A CSC matrix of explicit zeros holding the pattern ``keys`` (sorted)."""
+    m = shape[0]
+    cols, rows = np.divmod(keys, m)
+    indptr = np.zeros(shape[1] + 1, dtype=np.int64)
+    np.cumsum(np.bincount(cols, minlength=shape[1]), out=indptr[1:])
+    return sp.csc_matrix((np.zeros(len(keys)), rows, indptr), shape=shape)
+
+
 class Factoriser:
     """Factorises matrices of one sparsity pattern, ordering the pattern only once.
 
-    A matrix of another pattern is ordered afresh and becomes the pattern remembered.
+    The pattern remembered is the union of the patterns seen (entries missing from a matrix are
+    explicit zeros), so a matrix whose pattern lies inside it keeps the ordering. A matrix with
+    entries outside it is ordered afresh on the union; one of another shape starts anew.
     """
 
     def __init__(self):
-        self._indptr: np.ndarray | None = None
-        self._indices: np.ndarray | None = None
+        self._pattern: sp.csc_matrix | None = None  # the union pattern (values unused)
+        self._keys: np.ndarray | None = None
         self._order: np.ndarray | None = None
         self.orderings = 0  # fresh orderings computed (a counter for tests and benchmarks)
 
+    def state(self) -> dict | None:
+        """The remembered pattern (CSC ``indptr``, ``indices``) and ``order``, for a checkpoint."""
+        if self._order is None:
+            return None
+        return {"indptr": self._pattern.indptr, "indices": self._pattern.indices, "order": self._order}
+
+    def restore(self, indptr: np.ndarray, indices: np.ndarray, order: np.ndarray) -> None:
+        """Take back a pattern and ordering from :meth:`state` (a resumed run rounds as the first did)."""
+        m = len(indptr) - 1
+        self._pattern = sp.csc_matrix((np.zeros(len(indices)), np.asarray(indices), np.asarray(indptr)), shape=(m, m))
+        self._keys = _keys(self._pattern)
+        self._order = np.asarray(order)
+
     def _same_pattern(self, a: sp.csc_matrix) -> bool:
-        return (self._indptr is not None and a.indptr.shape == self._indptr.shape
-                and a.indices.shape == self._indices.shape
-                and np.array_equal(a.indptr, self._indptr) and np.array_equal(a.indices, self._indices))
+        p = self._pattern
+        return (p is not None and a.shape == p.shape and a.indptr.shape == p.indptr.shape
+                and a.indices.shape == p.indices.shape
+                and np.array_equal(a.indptr, p.indptr) and np.array_equal(a.indices, p.indices))
+
+    def _on_pattern(self, a: sp.csc_matrix) -> sp.csc_matrix:
+        """``a`` on the remembered pattern, widened to the union if it has entries outside it."""
+        keys = _keys(a)
+        pos = np.searchsorted(self._keys, keys)
+        inside = pos < len(self._keys)
+        inside[inside] = self._keys[pos[inside]] == keys[inside]
+        if not inside.all():
+            self._keys = np.union1d(self._keys, keys)
+            self._pattern, self._order = _from_keys(self._keys, a.shape), None
+            pos = np.searchsorted(self._keys, keys)
+        data = np.zeros(len(self._keys))
+        data[pos] = a.data
+        return sp.csc_matrix((data, self._pattern.indices, self._pattern.indptr), shape=a.shape)
 
     def __call__(self, matrix: sp.spmatrix | LowRankUpdate) -> Factor:
         a = _system(matrix)
         n = matrix.shape[0]
-        if self._same_pattern(a):
+        if self._pattern is not None and a.shape == self._pattern.shape and not self._same_pattern(a):
+            a = self._on_pattern(a)
+        rho = row_scale(a)
+        if rho is not None:  # the same pattern, rows scaled in place (explicit zeros kept)
+            a = sp.csc_matrix((a.data * rho[a.indices], a.indices, a.indptr), shape=a.shape)
+        if self._order is not None and self._same_pattern(a):
             q = self._order
-            return Factor(_splu(a[q][:, q].tocsc(), _PRE_ORDERED), n, q)
+            return Factor(_splu(a[q][:, q].tocsc(), _PRE_ORDERED), n, q, rho)
         lu = _splu(a, SPLU_OPTIONS)
         self.orderings += 1
-        self._indptr, self._indices = a.indptr.copy(), a.indices.copy()
+        if not self._same_pattern(a):
+            self._pattern = sp.csc_matrix((np.zeros(a.nnz), a.indices.copy(), a.indptr.copy()), shape=a.shape)
+            self._keys = _keys(a)
         # SuperLU factorises Pr A Pc; symmetric pre-ordering with the inverse of perm_c
         # reproduces its column order (and so its fill)
         self._order = np.argsort(lu.perm_c)
-        return Factor(lu, n)
+        return Factor(lu, n, None, rho)
 
 
 def solve(lu: Factor, rhs: np.ndarray) -> np.ndarray:

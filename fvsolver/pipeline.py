@@ -23,7 +23,7 @@ from fvsolver.outputs.paths import clean_partial_files
 from fvsolver.safeguards import StateWatch, plain_title
 from fvsolver.stepper import TimeStepper
 
-EXIT_OK, EXIT_CASE, EXIT_SOLVER, EXIT_INTERNAL, EXIT_INTERRUPTED = 0, 2, 3, 4, 130
+from fvsolver.exit_codes import EXIT_CASE, EXIT_INTERNAL, EXIT_INTERRUPTED, EXIT_OK, EXIT_SOLVER  # noqa: E402,F401
 
 
 @dataclass

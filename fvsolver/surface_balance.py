@@ -26,18 +26,18 @@ def solve_surface(terms, kappa, t_foot, guess, time, centres, faces, context):
         return kappa[idx] * (x - t_foot[idx]) - q, kappa[idx] - dq
 
     every = np.arange(ts.size)
-    f_lo, f_hi = residual(every, lo)[0], residual(every, hi)[0]
+    # both ends in one call of the terms (they act face by face): half the calls, the same values
+    f_both = residual(np.concatenate([every, every]), np.concatenate([lo, hi]))[0]
+    f_lo, f_hi = f_both[: ts.size].copy(), f_both[ts.size:].copy()
     for _ in range(60):  # widen the bracket until F(lo) <= 0 <= F(hi), on the faces that need it
         bad_lo, bad_hi = np.flatnonzero(f_lo > 0.0), np.flatnonzero(f_hi < 0.0)
         if not (bad_lo.size or bad_hi.size):
             break
         width = hi - lo
-        if bad_lo.size:
-            lo[bad_lo] -= width[bad_lo]
-            f_lo[bad_lo] = residual(bad_lo, lo[bad_lo])[0]
-        if bad_hi.size:
-            hi[bad_hi] += width[bad_hi]
-            f_hi[bad_hi] = residual(bad_hi, hi[bad_hi])[0]
+        lo[bad_lo] -= width[bad_lo]
+        hi[bad_hi] += width[bad_hi]
+        f_both = residual(np.concatenate([bad_lo, bad_hi]), np.concatenate([lo[bad_lo], hi[bad_hi]]))[0]
+        f_lo[bad_lo], f_hi[bad_hi] = f_both[: bad_lo.size], f_both[bad_lo.size:]
     active = np.arange(ts.size)
     for _ in range(SURFACE_ITERATIONS * 2):
         # only the faces not yet converged are iterated (a face switching from condensing to

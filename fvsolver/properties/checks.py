@@ -24,6 +24,14 @@ def checked(value: ArrayLike, name: str, low: float, high: float, hint: str, uni
             low_open: bool = False) -> NDArray[np.float64]:
     """Return ``value`` as a float array, raising PropertyError if any entry is outside its interval."""
     arr = np.asarray(value, dtype=float)
+    # the common case in two reductions, no temporaries: min/max are NaN if any entry is, and
+    # every comparison with NaN is false, so a NaN or an infinity falls to the full check below
+    if arr.size:
+        lo, hi = (float(arr), float(arr)) if arr.ndim == 0 else (float(arr.min()), float(arr.max()))
+        if (lo > low if low_open else lo >= low) and hi <= high and -np.inf < lo and hi < np.inf:
+            return arr
+    else:
+        return arr
     below = arr <= low if low_open else arr < low
     bad = ~np.isfinite(arr) | below | (arr > high)
     if np.any(bad):

@@ -39,6 +39,18 @@ UNIVERSAL_GAS_CONSTANT = 8.314462618
 """Molar gas constant [J/(mol K)] (CODATA 2018, exact)."""
 
 
+# arrays at least this long go to the compiled twins in fvsolver.kernels.properties
+KERNEL_MIN_SIZE = 4
+
+
+def _compiled(kernel, T: NDArray[np.float64], *args) -> NDArray[np.float64]:
+    """``kernel(T, *args, out)`` on the flattened array, in T's shape."""
+    flat = np.ascontiguousarray(T, dtype=np.float64).ravel()
+    out = np.empty_like(flat)
+    kernel(flat, *args, out)
+    return out.reshape(T.shape)
+
+
 class PropertyRangeWarning(UserWarning):
     """A correlation was evaluated outside the range its source states."""
 
@@ -46,6 +58,11 @@ class PropertyRangeWarning(UserWarning):
 def _array(value: ArrayLike, name: str, unit: str) -> NDArray[np.float64]:
     """Return a float array, raising on non-finite or non-positive entries."""
     arr = np.asarray(value, dtype=float)
+    if arr.size == 0:
+        return arr
+    lo, hi = (float(arr), float(arr)) if arr.ndim == 0 else (float(arr.min()), float(arr.max()))
+    if lo > 0.0 and hi < np.inf:  # NaN fails both comparisons: the full check below reports it
+        return arr
     bad = ~np.isfinite(arr) | (arr <= 0.0)
     if np.any(bad):
         first = float(np.ravel(arr[bad])[0])
@@ -78,14 +95,35 @@ class WagnerEquation:
 
     def pressure(self, T: NDArray[np.float64]) -> NDArray[np.float64]:
         """Saturation pressure [Pa] at T [K] (no range check)."""
+        T = np.asarray(T, dtype=float)
+        if T.size >= KERNEL_MIN_SIZE:
+            from fvsolver.kernels import properties as kp  # numba only where arrays are evaluated
+            return _compiled(kp.wagner_pressure, T, self.critical_temperature, self.critical_pressure,
+                             self._coefficients)
+        return self._pressure_numpy(T)
+
+    def _pressure_numpy(self, T: NDArray[np.float64]) -> NDArray[np.float64]:
+        """The NumPy twin of ``kernels.properties.wagner_pressure``."""
         f, _ = self._f(T)
         return self.critical_pressure * np.exp(f * self.critical_temperature / T)
 
     def dlnp_dT(self, T: NDArray[np.float64]) -> NDArray[np.float64]:
         """d ln(p_sat)/dT [1/K] at T [K]."""
+        T = np.asarray(T, dtype=float)
+        if T.size >= KERNEL_MIN_SIZE:
+            from fvsolver.kernels import properties as kp
+            return _compiled(kp.wagner_dlnp_dT, T, self.critical_temperature, self._coefficients)
+        return self._dlnp_dT_numpy(T)
+
+    def _dlnp_dT_numpy(self, T: NDArray[np.float64]) -> NDArray[np.float64]:
+        """The NumPy twin of ``kernels.properties.wagner_dlnp_dT``."""
         f, df_dtau = self._f(T)
         tr = T / self.critical_temperature
         return -(df_dtau * tr + f) / (self.critical_temperature * tr**2)
+
+    @property
+    def _coefficients(self) -> NDArray[np.float64]:
+        return np.array([self.a, self.b, self.c, self.d])
 
     def temperature(self, p: NDArray[np.float64]) -> NDArray[np.float64]:
         """Saturation temperature [K] at p [Pa] by Newton iteration on ln p."""
@@ -189,11 +227,15 @@ class WorkingFluid:
     def _temperature(self, T: ArrayLike, quantity: str, low: float, high: float) -> NDArray[np.float64]:
         """Validate T, refusing supercritical values and warning outside [low, high]."""
         t = _array(T, "T", "K")
-        if np.any(t > self.critical_temperature):
+        if t.size == 0:
+            return t
+        t_lo, t_hi = (float(t), float(t)) if t.ndim == 0 else (float(t.min()), float(t.max()))
+        if t_hi > self.critical_temperature:
             raise PropertyError(
-                f"{self.name}: {quantity} asked at T = {float(np.max(t)):.10g} K; expected T below the critical "
+                f"{self.name}: {quantity} asked at T = {t_hi:.10g} K; expected T below the critical "
                 f"temperature {self.critical_temperature} K, where no liquid exists; lower the temperature")
-        self._warn_outside(t, quantity, low, high, stacklevel=4)
+        if t_lo < low or t_hi > high:  # the range is looked at once; the warning's details only when needed
+            self._warn_outside(t, quantity, low, high, stacklevel=4)
         return t
 
     def _warn_outside(self, values: NDArray[np.float64], quantity: str, low: float, high: float,
@@ -233,6 +275,15 @@ class WorkingFluid:
     def latent_heat(self, T: ArrayLike) -> NDArray[np.float64]:
         """Specific enthalpy of vaporization [J/kg] at ``T`` [K] (PPDS12)."""
         t = self._temperature(T, "latent heat", *self.liquid_range)
+        if t.size >= KERNEL_MIN_SIZE:
+            from fvsolver.kernels import properties as kp
+            return _compiled(kp.ppds12_latent_heat, t, self.critical_temperature,
+                             np.array(self.latent_heat_ppds12, dtype=float),
+                             UNIVERSAL_GAS_CONSTANT * self.critical_temperature, self.molar_mass)
+        return self._latent_heat_numpy(t)
+
+    def _latent_heat_numpy(self, t: NDArray[np.float64]) -> NDArray[np.float64]:
+        """PPDS eq. 12 in NumPy (the twin of ``kernels.properties.ppds12_latent_heat``)."""
         tau = 1.0 - t / self.critical_temperature
         a, b, c, d, e = self.latent_heat_ppds12
         molar = UNIVERSAL_GAS_CONSTANT * self.critical_temperature * (

@@ -74,12 +74,14 @@ _N = (
     -0.23855557567849e0,
     0.65017534844798e3,
 )
+_N_ARRAY = np.array(_N)
 
 # VDI Heat Atlas PPDS12 coefficients for water: dimensionless A..E with
 # R*Tc scaling; the table gives its own Tc, used here so the fit is unchanged.
 _PPDS12_TC = 647.1
 _PPDS12 = (6.85307, 7.43804, -2.937595, -3.282093, 8.397378)
 _R = 8.314462618
+_PPDS12_ARRAY = np.array(_PPDS12)
 
 # Kell (1975) rational form, t in degrees Celsius (IPTS-68; the shift to
 # ITS-90 is a few mK and below the fit accuracy).
@@ -98,6 +100,18 @@ def _checked(value, name, low, high, unit, hint, low_open=False):
 def _out(arr: NDArray[np.float64]) -> NDArray[np.float64]:
     """Return 0-d results as numpy scalars and arrays unchanged."""
     return arr[()]
+
+
+# arrays at least this long go to the compiled twins in fvsolver.kernels.properties
+KERNEL_MIN_SIZE = 4
+
+
+def _compiled(kernel, T: NDArray[np.float64], *args) -> NDArray[np.float64]:
+    """``kernel(T, *args, out)`` on the flattened array, in T's shape."""
+    flat = np.ascontiguousarray(T, dtype=np.float64).ravel()
+    out = np.empty_like(flat)
+    kernel(flat, *args, out)
+    return out.reshape(T.shape)
 
 
 def _saturation_abc(T: NDArray[np.float64]) -> tuple[NDArray[np.float64], ...]:
@@ -134,9 +148,17 @@ def saturation_pressure(T: ArrayLike) -> NDArray[np.float64]:
     """
     T = _checked(T, "T", T_SATURATION_MIN, CRITICAL_TEMPERATURE, "K",
                  "pass the temperature in kelvin (not Celsius) on the liquid-vapour saturation line")
+    if T.size >= KERNEL_MIN_SIZE:
+        from fvsolver.kernels import properties as kp  # numba only where arrays are evaluated
+        return _compiled(kp.if97_saturation_pressure, T, _N_ARRAY)
+    return _out(_saturation_pressure_numpy(T))
+
+
+def _saturation_pressure_numpy(T: NDArray[np.float64]) -> NDArray[np.float64]:
+    """IF97 eq. (30) in NumPy (the twin of ``kernels.properties.if97_saturation_pressure``)."""
     a, b, c, *_ = _saturation_abc(T)
     x = 2.0 * c / (-b + np.sqrt(b**2 - 4.0 * a * c))
-    return _out(1.0e6 * x**4)
+    return 1.0e6 * x**4
 
 
 def dsaturation_pressure_dT(T: ArrayLike) -> NDArray[np.float64]:
@@ -161,13 +183,21 @@ def dsaturation_pressure_dT(T: ArrayLike) -> NDArray[np.float64]:
     """
     T = _checked(T, "T", T_SATURATION_MIN, CRITICAL_TEMPERATURE, "K",
                  "pass the temperature in kelvin (not Celsius) on the liquid-vapour saturation line")
+    if T.size >= KERNEL_MIN_SIZE:
+        from fvsolver.kernels import properties as kp
+        return _compiled(kp.if97_dsaturation_pressure_dT, T, _N_ARRAY)
+    return _out(_dsaturation_pressure_dT_numpy(T))
+
+
+def _dsaturation_pressure_dT_numpy(T: NDArray[np.float64]) -> NDArray[np.float64]:
+    """dp_sat/dT in NumPy (the twin of ``kernels.properties.if97_dsaturation_pressure_dT``)."""
     a, b, c, da, db, dc, dtheta = _saturation_abc(T)
     s = np.sqrt(b**2 - 4.0 * a * c)
     den = -b + s
     x = 2.0 * c / den
     ds = (b * db - 2.0 * (a * dc + c * da)) / s
     dx_dtheta = (2.0 * dc * den - 2.0 * c * (-db + ds)) / den**2
-    return _out(1.0e6 * 4.0 * x**3 * dx_dtheta * dtheta)
+    return 1.0e6 * 4.0 * x**3 * dx_dtheta * dtheta
 
 
 def saturation_temperature(p: ArrayLike) -> NDArray[np.float64]:
@@ -229,10 +259,18 @@ def latent_heat(T: ArrayLike) -> NDArray[np.float64]:
         If any temperature is outside 273.15-373.15 K or not finite.
     """
     T = _liquid_temperature(T)
+    if T.size >= KERNEL_MIN_SIZE:
+        from fvsolver.kernels import properties as kp
+        return _compiled(kp.ppds12_latent_heat, T, _PPDS12_TC, _PPDS12_ARRAY, _R * _PPDS12_TC, MOLAR_MASS)
+    return _out(_latent_heat_numpy(T))
+
+
+def _latent_heat_numpy(T: NDArray[np.float64]) -> NDArray[np.float64]:
+    """PPDS eq. 12 in NumPy (the twin of ``kernels.properties.ppds12_latent_heat``)."""
     tau = 1.0 - T / _PPDS12_TC
     a, b, c, d, e = _PPDS12
     molar = _R * _PPDS12_TC * (a * tau ** (1 / 3) + b * tau ** (2 / 3) + c * tau + d * tau**2 + e * tau**6)
-    return _out(molar / MOLAR_MASS)
+    return molar / MOLAR_MASS
 
 
 def liquid_density(T: ArrayLike) -> NDArray[np.float64]:

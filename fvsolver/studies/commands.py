@@ -7,7 +7,7 @@ import contextlib
 from pathlib import Path
 
 from fvsolver.errors import CaseError
-from fvsolver.pipeline import EXIT_OK, EXIT_SOLVER
+from fvsolver.exit_codes import EXIT_OK, EXIT_SOLVER
 
 HELP = {
     "envelope": "run a case over a grid of room temperature and humidity; draw where the device runs",

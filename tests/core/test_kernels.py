@@ -92,3 +92,44 @@ def test_affine_step_kernels_match_reference(rng):
     slope, reference = rng.normal(size=60), rng.normal(size=n)
     assert kern.gross_exchange(y0, cells, slope, reference) == pytest.approx(
         ref.gross_exchange(y0, cells, slope, reference), rel=1e-13)
+
+
+# -- the property kernels against the NumPy formulas of their property modules ----------------------
+def test_water_property_kernels_match_their_numpy_twins(rng):
+    from fvsolver.kernels import properties as kp
+    from fvsolver.properties import water
+
+    T = rng.uniform(273.16, 372.0, 40)
+    out = np.empty_like(T)
+    kp.if97_saturation_pressure(T, water._N_ARRAY, out)
+    np.testing.assert_allclose(out, water._saturation_pressure_numpy(T), rtol=1e-14)
+    kp.if97_dsaturation_pressure_dT(T, water._N_ARRAY, out)
+    np.testing.assert_allclose(out, water._dsaturation_pressure_dT_numpy(T), rtol=1e-14)
+    kp.ppds12_latent_heat(T, water._PPDS12_TC, water._PPDS12_ARRAY, water._R * water._PPDS12_TC, water.MOLAR_MASS, out)
+    np.testing.assert_allclose(out, water._latent_heat_numpy(T), rtol=1e-14)
+    # the public functions: kernels for arrays, NumPy for scalars, the same values in any shape
+    np.testing.assert_allclose(water.saturation_pressure(T.reshape(8, 5)).ravel(),
+                               [water.saturation_pressure(float(t)) for t in T], rtol=1e-14)
+
+
+def test_fluid_property_kernels_match_their_numpy_twins(rng):
+    from fvsolver.kernels import properties as kp
+    from fvsolver.properties.fluids import FLUIDS, UNIVERSAL_GAS_CONSTANT, WagnerEquation, get_fluid
+
+    checked = 0
+    for name in FLUIDS:
+        fluid = get_fluid(name)
+        eq = fluid.vapour_pressure
+        T = rng.uniform(max(eq.t_min, fluid.liquid_range[0]), min(eq.t_max, fluid.liquid_range[1]), 30)
+        out = np.empty_like(T)
+        if isinstance(eq, WagnerEquation):
+            kp.wagner_pressure(T, eq.critical_temperature, eq.critical_pressure, eq._coefficients, out)
+            np.testing.assert_allclose(out, eq._pressure_numpy(T), rtol=1e-14)
+            kp.wagner_dlnp_dT(T, eq.critical_temperature, eq._coefficients, out)
+            np.testing.assert_allclose(out, eq._dlnp_dT_numpy(T), rtol=1e-13)
+            checked += 1
+        kp.ppds12_latent_heat(T, fluid.critical_temperature, np.array(fluid.latent_heat_ppds12),
+                              UNIVERSAL_GAS_CONSTANT * fluid.critical_temperature, fluid.molar_mass, out)
+        np.testing.assert_allclose(out, fluid._latent_heat_numpy(T), rtol=1e-14)
+        np.testing.assert_allclose(fluid.latent_heat(T), [fluid.latent_heat(float(t)) for t in T], rtol=1e-14)
+    assert checked >= 1
