@@ -41,6 +41,9 @@ class Result:
     temperature: np.ndarray
     state: np.ndarray
     setup: Setup = field(repr=False)
+    inflow: dict = field(default_factory=dict, repr=False)   # each conserved total's inflow over the run
+    events: dict = field(default_factory=dict, repr=False)   # what a cycle's events moved into each total
+    cycles: list = field(default_factory=list, repr=False)   # a whole device's cycles.csv rows
 
 
 def _history_row(setup: Setup, stepper: TimeStepper, monitor) -> dict:
@@ -152,13 +155,20 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
     setup = build(case)
     stepper = TimeStepper(setup.problem, setup.initial, 0.0, setup.end_time, setup.options,
                           stop_times=setup.field_times)
-    monitor = None
+    monitor = cycle = None
     rewettings = ()
     if setup.device is not None:
         from fvsolver.device.monitor import DeviceMonitor
 
         monitor = DeviceMonitor(setup.problem, 0.0, setup.initial)
         rewettings = setup.device.cap_water.rewettings
+        if setup.device.cycle is not None:
+            from fvsolver.device.cycle import CycleController
+
+            if resume:
+                raise CaseError("--resume: a whole device's cycle cannot be resumed yet; run it again with "
+                                "--overwrite")
+            cycle = CycleController(setup.problem, 0.0, setup.initial)
     if folder is not None:
         data = thaw(case.data)
         data.pop("_folder", None)
@@ -189,9 +199,13 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
                 and setup.device.target.stop_when_reached)
     try:
         while not finished and stepper.step():
+            if cycle is not None and cycle.located(stepper):
+                continue  # the tip lies inside the step: it is taken again to end there
             for g, err in stepper.balance_error.items():
                 worst[g] = max(worst.get(g, 0.0), float(err))
             reached = monitor.after_step(stepper) if monitor is not None else False
+            if cycle is not None:
+                cycle.after_step(stepper, monitor)
             for when, mass, temperature in rewettings:
                 if stepper.t == when:
                     stepper.reset(monitor.rewet(stepper.y, mass, temperature))
@@ -204,7 +218,7 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
                 last_checkpoint = wall.monotonic()
             if progress is not None:
                 progress(stepper, monitor)
-            if reached and setup.device.target.stop_when_reached:
+            if reached and setup.device.target.stop_when_reached or cycle is not None and cycle.finished:
                 break
         if stepper.status == "failed":
             status, reason = "failed", stepper.message
@@ -220,14 +234,22 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
     except KeyboardInterrupt:
         status, reason = "interrupted", f"stopped by the user at t = {stepper.t:.6g} s (continue with --resume)"
         save_checkpoint()
+    if cycle is not None and status == "complete":
+        cycle.finish(stepper.t, monitor, lambda: monitor.stall_reason(stepper.y, stepper.t))
     summary = _summary(case, setup, stepper, monitor, worst, status, reason)
+    if cycle is not None:
+        summary.update(cycle.summary())
     history = {k: np.array([r.get(k, np.nan) for r in rows]) for k in rows[-1]}
     if folder is not None:
         _write_csv(folder / "history.csv", rows)
+        if cycle is not None:
+            _write_csv(folder / "cycles.csv", cycle.cycles or [{"cycle": None}])
         if plots:
             _write_plots_and_report(folder, case, setup, summary, history, fields)
         atomic_write_text(folder / "summary.json", json.dumps(summary, indent=2))
-    result = Result(summary, history, stepper.y[: setup.mesh.n_cells].copy(), stepper.y.copy(), setup)
+    result = Result(summary, history, stepper.y[: setup.mesh.n_cells].copy(), stepper.y.copy(), setup,
+                    dict(stepper.cumulative_inflow), dict(cycle.event_inflow) if cycle else {},
+                    list(cycle.cycles) if cycle else [])
     if status == "failed":
         raise SolverError(f"the run failed: {reason} (the last good fields are in the outputs)")
     return result

@@ -7,6 +7,10 @@ from pathlib import Path
 from fvsolver.case.schema import SHAPES
 
 GLASS, CAP, AXIS = "glass", "cap", "axis"
+WHOLE_DEVICE_PATCHES = ("axis", "inner_wall", "bore", "glass_outer", "cap_outer", "cap_edge", "neck_outer",
+                        "body_inner", "body_outer", "dip_tube_outer", "tube_end")
+BODY_PATCHES = ("body_inner", "dip_tube_outer", "tube_end")  # in the pool or the body's vapour
+OUTER_PATCHES = ("cap_outer", "cap_edge", "glass_outer", "neck_outer", "body_outer")
 
 
 def shape_tags(geometry: dict) -> tuple[tuple, tuple]:
@@ -16,6 +20,7 @@ def shape_tags(geometry: dict) -> tuple[tuple, tuple]:
     return {
         "device_head": (("axis", "inner_wall", "bore", "glass_outer", "cap_outer", "cap_edge", "neck_outer",
                          "neck_end"), (GLASS, CAP)),
+        "whole_device": (WHOLE_DEVICE_PATCHES, (GLASS, CAP)),
         "two_layer_shell": (("axis", "inner_wall", "glass_outer", "cap_outer", "cap_edge"), (GLASS, CAP)),
         "spherical_shell": (("axis", "inner", "outer"), one),
         "solid_sphere": (("axis", "surface"), one),
@@ -57,7 +62,7 @@ def check_consistency(data: dict, v) -> None:
             v.error(f"geometry.{name}", f"not used by shape {shape!r} (it takes {', '.join(needed)}); remove it")
     if len(v.problems) > start:
         return
-    if shape in ("device_head", "two_layer_shell"):
+    if shape in ("device_head", "two_layer_shell", "whole_device"):
         if not geo["cap_from_deg"] < geo["cap_to_deg"]:
             v.error("geometry.cap_to_deg", f"got {geo['cap_to_deg']!r}, expected more than cap_from_deg "
                     f"({geo['cap_from_deg']!r}): the cap covers the polar range from cap_from_deg to cap_to_deg")
@@ -74,6 +79,8 @@ def check_consistency(data: dict, v) -> None:
             if geo["cap_to_deg"] >= limit:
                 v.error("geometry.cap_to_deg", f"got {geo['cap_to_deg']!r}, expected less than {limit:.2f} deg, "
                         "where the neck tube meets the bulb; the cap must fit the bulb")
+    if shape == "whole_device":
+        _check_whole_device_geometry(geo, v)
     if shape == "two_layer_shell" and geo["cap_to_deg"] >= 180.0:
         v.error("geometry.cap_to_deg", f"got {geo['cap_to_deg']!r}, expected less than 180 (a rim is needed)")
     if shape in ("spherical_shell", "hollow_cylinder") and not geo["inner_radius"] < geo["outer_radius"]:
@@ -163,7 +170,7 @@ def check_consistency(data: dict, v) -> None:
 
 def device_patches(data: dict, patches) -> tuple:
     """Patches the device model sets: the cap, the vapour-space walls, the bare outer glass."""
-    fixed = ("cap_outer", "cap_edge", "glass_outer", "neck_outer")
+    fixed = OUTER_PATCHES + (BODY_PATCHES + ("bore",) if data["geometry"]["shape"] == "whole_device" else ())
     return tuple(p for p in patches if p in fixed or p in data["fluid"]["condensing_patches"])
 
 
@@ -174,8 +181,9 @@ def _check_device(data: dict, v, patches, start: int) -> bool:
     from fvsolver.properties.fluids import FLUIDS, get_fluid
 
     shape = data["geometry"]["shape"]
-    if shape not in ("device_head", "two_layer_shell", "mesh_file"):
-        v.error("geometry.shape", f"got {shape!r}, expected 'device_head' or 'two_layer_shell' with a [fluid] "
+    if shape not in ("device_head", "two_layer_shell", "whole_device", "mesh_file"):
+        v.error("geometry.shape", f"got {shape!r}, expected 'device_head', 'whole_device' or 'two_layer_shell' "
+                "with a [fluid] "
                 "(the device needs a cap and a vapour space)")
         return False
     for needed in ("cap_outer", "inner_wall"):
@@ -185,7 +193,10 @@ def _check_device(data: dict, v, patches, start: int) -> bool:
     for name, key in (("cap", CAP_KEY), ("cap_water", CAP_WATER), ("second_bulb", SECOND_BULB)):
         if name not in data:
             data[name] = v.check(key, {}, name)
-    for name in ("room", "target"):
+    whole = shape == "whole_device"
+    if not data["fluid"]["condensing_patches"]:
+        data["fluid"]["condensing_patches"] = ["inner_wall"] + ([] if whole or "bore" not in patches else ["bore"])
+    for name in ("room",) + (("pool",) if whole else ("target",)):
         if name not in data:
             v.error(name, f"missing: a case with a [fluid] needs a [{name}] table", line_path="fluid")
     if len(v.problems) > start:
@@ -195,7 +206,7 @@ def _check_device(data: dict, v, patches, start: int) -> bool:
     except PropertyError:
         v.error("fluid.name", f"got {data['fluid']['name']!r}, expected one of {', '.join(FLUIDS)}")
         return False
-    room, target, water = data["room"], data["target"], data["cap_water"]
+    room, target, water = data["room"], data.get("target", {}), data["cap_water"]
     t_air = room["air_temperature"]
     eq = fluid.vapour_pressure
     if not eq.t_min <= t_air <= eq.t_max:
@@ -210,7 +221,9 @@ def _check_device(data: dict, v, patches, start: int) -> bool:
     room.setdefault("surroundings_temperature", t_air)
     water.setdefault("reservoir_temperature", t_air)
     data["second_bulb"].setdefault("initial_temperature", t_air)
-    if ("column_height" in target) == ("pressure_drop" in target):
+    if whole:
+        _check_cycle(data, v, t_air)
+    elif ("column_height" in target) == ("pressure_drop" in target):
         v.error("target", "expected exactly one of column_height (m) or pressure_drop (Pa)")
     if not water["residual_saturation"] < water["critical_saturation"] <= 1.0:
         v.error("cap_water.critical_saturation", f"got {water['critical_saturation']!r}, expected more than "
@@ -225,11 +238,15 @@ def _check_device(data: dict, v, patches, start: int) -> bool:
         if p not in patches:
             v.error("fluid.condensing_patches", f"got {p!r}, expected patches of the vapour space "
                     f"(one of {', '.join(patches)})")
-    outer = ("cap_outer", "cap_edge", "glass_outer", "neck_outer")
+    outer = ", ".join(p for p in OUTER_PATCHES if p in patches)
     for i, hs in enumerate(data["heat_sources"]):
-        if hs["patch"] not in outer or hs["patch"] not in patches:
-            v.error(f"heat_sources[{i}].patch", f"got {hs['patch']!r}, expected an outer patch of the head "
-                    f"({', '.join(p for p in outer if p in patches)})")
+        if hs["patch"] not in OUTER_PATCHES or hs["patch"] not in patches:
+            v.error(f"heat_sources[{i}].patch", f"got {hs['patch']!r}, expected an outer patch ({outer})")
+    for i, hs in enumerate(data["hot_air"]):
+        if not whole:
+            v.error(f"hot_air[{i}]", "warm air streams act on a whole device's bulbs; use shape = 'whole_device'")
+        elif hs["patch"] not in OUTER_PATCHES:
+            v.error(f"hot_air[{i}].patch", f"got {hs['patch']!r}, expected an outer patch ({outer})")
     return len(v.problems) == start
 
 
@@ -247,3 +264,42 @@ def _check_wet_bulb(room: dict, v) -> None:
             return  # other range problems are reported by the checks of those keys
         v.error("room.relative_humidity", f"got {rh!r} at air_temperature {t!r} K: the wet-bulb temperature "
                 "is below 0 C, so the wet cap would freeze (not modelled); use a warmer or more humid room")
+
+
+def _check_whole_device_geometry(geo: dict, v) -> None:
+    """The whole device's dimensions, with the mesh builder's own checks (same messages)."""
+    from fvsolver.errors import MeshError
+    from fvsolver.mesh.device import device_layout
+
+    try:
+        layout = device_layout(geo["bulb_inner_radius"], geo["glass_thickness"], geo["neck_inner_radius"],
+                               geo["neck_outer_radius"], geo["tube_length"], geo["body_inner_radius"],
+                               geo["body_glass_thickness"], geo["tube_end_gap"])
+    except MeshError as exc:
+        v.error("geometry", str(exc))
+        return
+    limit = 180.0 - math.degrees(math.asin(layout.tube_outer_radius / layout.head_outer_radius))
+    if geo["cap_to_deg"] >= limit:
+        v.error("geometry.cap_to_deg", f"got {geo['cap_to_deg']!r}, expected less than {limit:.2f} deg, where the "
+                "tube meets the head; the cap must fit the bulb")
+
+
+def _check_cycle(data: dict, v, t_air: float) -> None:
+    """The pool and the tipping of a whole device; fills their defaults."""
+    from fvsolver.case.schema import CYCLE
+
+    if "cycle" not in data:
+        data["cycle"] = v.check(CYCLE, {}, "cycle")
+    cycle, pool = data["cycle"], data["pool"]
+    pool.setdefault("fill_temperature", t_air)
+    pool.setdefault("initial_temperature", t_air)
+    cycle.setdefault("water_temperature", t_air)
+    if ("pivot_height" in cycle) == ("tip_column_height" in cycle):
+        v.error("cycle", "expected exactly one of pivot_height (m, the device tips when its centre of mass rises to "
+                "it) or tip_column_height (m)", line_path="cycle")
+    if "target" in data:
+        v.error("target", "a whole device tips where its centre of mass reaches the pivot: give [cycle] "
+                "pivot_height or tip_column_height instead of [target]")
+    if data["cap_water"]["rewettings"] and cycle["water_glass"]:
+        v.error("cap_water.rewettings", "a water glass wets the cap at every dip; leave out the rewettings or set "
+                "cycle.water_glass = false")

@@ -152,20 +152,22 @@ class RoomSurface:
     """A dry outer surface in the room: convection with the room's coefficient, radiation and an
     optional imposed heat flux (a lamp, sunlight; W/m2 into the body).
 
-    ``context["room"]["h"]`` supplies the convection coefficient, W/(m2 K).
+    ``context[exchange]["h"]`` supplies the convection coefficient, W/(m2 K): ``"room"`` (the head's),
+    ``"body"`` (the body bulb's) or a warm air stream's entry.
     """
 
     air_temperature: float
     emissivity: float
     surroundings_temperature: float
     extra_flux: float = 0.0
+    exchange: str = "room"
     coupled = True
 
     def validate(self, where: str) -> None:
         return None
 
     def heat_flux(self, T_s, time, centres, faces, context):
-        h = context["room"]["h"]
+        h = context[self.exchange]["h"]
         es = self.emissivity * STEFAN_BOLTZMANN
         q = h * (self.air_temperature - T_s) + es * (self.surroundings_temperature**4 - T_s**4) + self.extra_flux
         return q, -h - 4.0 * es * T_s**3
