@@ -104,11 +104,14 @@ def _run(args) -> int:
     s = result.summary
     _say(args, f"{s['title'] or args.case.stem}: {s['status']} at t = {s['end_time_s']:.6g} s "
                f"({s['n_steps']} steps, {s['n_cells']} cells)")
-    if s["target_reached"] is not None:
+    if s.get("outcome"):
+        _say(args, "  " + cycle_lines(s))
+    if s["target_reached"] is not None and not s.get("outcome"):
         if s["target_reached"]:
             _say(args, f"  target {s['target_pressure_drop_pa']:.0f} Pa reached at t = {s['time_to_target_s']:.2f} s")
         else:
             _say(args, f"  target {s['target_pressure_drop_pa']:.0f} Pa NOT reached: {s['stall_reason']}")
+    if s["target_reached"] is not None:
         _say(args, f"  largest internal pressure {s['max_internal_pressure_pa']:.0f} Pa, largest glass temperature "
                    f"{s['max_glass_temperature_k']:.2f} K")
         for w in s["warnings"]:
@@ -123,6 +126,20 @@ def _run(args) -> int:
             _say(args, "  room: " + ", ".join(f"{k} {v:.4g}" for k, v in s["room"].items()))
     _say(args, f"  outputs in {out}")
     return EXIT_INTERRUPTED if s["status"] == "interrupted" else EXIT_OK
+
+
+def cycle_lines(s: dict) -> str:
+    """A whole device's outcome in a few printed lines."""
+    out = f"outcome: {s['outcome'].replace('_', ' ')} - {s['outcome_reason']}"
+    if s.get("first_tip_s") is not None:
+        out += f"\n  first tip at t = {s['first_tip_s']:.2f} s; {s['n_cycles']} tips"
+    if s.get("period_s"):
+        out += (f"\n  period {s['period_s']:.3f} s ({s['dips_per_hour']:.0f} dips per hour); water "
+                f"{1e6 * s['water_per_dip_kg']:.2f} mg per dip, {1e3 * s['water_per_day_kg']:.1f} g per day; "
+                f"evaporative cooling {s['evaporative_cooling_w']:.3f} W")
+    elif s.get("last_period_s"):
+        out += f"\n  last period {s['last_period_s']:.3f} s (not settled)"
+    return out
 
 
 def _sweep(args) -> int:

@@ -245,7 +245,7 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
         if cycle is not None:
             _write_csv(folder / "cycles.csv", cycle.cycles or [{"cycle": None}])
         if plots:
-            _write_plots_and_report(folder, case, setup, summary, history, fields)
+            _write_plots_and_report(folder, case, setup, summary, history, fields, cycle.cycles if cycle else ())
         atomic_write_text(folder / "summary.json", json.dumps(summary, indent=2))
     result = Result(summary, history, stepper.y[: setup.mesh.n_cells].copy(), stepper.y.copy(), setup,
                     dict(stepper.cumulative_inflow), dict(cycle.event_inflow) if cycle else {},
@@ -286,7 +286,7 @@ def _summary(case, setup, stepper, monitor, worst, status, reason) -> dict:
     return summary
 
 
-def _write_plots_and_report(folder: Path, case, setup, summary, history, fields) -> None:
+def _write_plots_and_report(folder: Path, case, setup, summary, history, fields, cycles=()) -> None:
     from fvsolver.outputs.report import write_report
     from fvsolver.plotting import history_plot, temperature_field_plot
 
@@ -301,6 +301,11 @@ def _write_plots_and_report(folder: Path, case, setup, summary, history, fields)
         history_plot(history, folder / "history.png", summary["target_pressure_drop_pa"],
                      summary["time_to_target_s"], title=case["title"])
         plots.append("history.png")
+    if cycles:
+        from fvsolver.plotting import cycle_plot
+
+        cycle_plot(history, cycles, folder / "cycles.png", title=case["title"])
+        plots.append("cycles.png")
     write_report(folder, summary, case["title"] or (case.path.stem if case.path else "case"), _inputs(case), plots)
 
 
@@ -313,8 +318,15 @@ def _inputs(case) -> dict:
                     "air speed (m/s)": r["air_speed"], "convection": r["convection"],
                     "working fluid": d["fluid"]["name"], "cap water": d["cap_water"]["mode"],
                     "second bulb": d["second_bulb"]["mode"]})
-        t = d["target"]
-        out["target"] = (f"column {t['column_height']} m" if "column_height" in t else f"{t['pressure_drop']} Pa")
+        if "cycle" in d:
+            c = d["cycle"]
+            out["tips at"] = (f"column {c['tip_column_height']} m" if "tip_column_height" in c
+                              else f"centre of mass at the pivot, {c['pivot_height']} m above the body's bottom")
+            out["water glass"] = (f"yes, at {c['water_temperature']} K" if c["water_glass"] else "no")
+            out["pool fill (m3)"] = d["pool"]["fill_volume"]
+        else:
+            t = d["target"]
+            out["target"] = (f"column {t['column_height']} m" if "column_height" in t else f"{t['pressure_drop']} Pa")
     return out
 
 

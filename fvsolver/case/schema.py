@@ -272,7 +272,7 @@ CYCLE = table(
     num("tip_column_height", "Or: the column height at which it tips, given directly.", "m", positive=True),
     num("tipped_time", "How long it stays tipped (vapour spaces joined, column draining).", "s", 2.0,
         positive=True),
-    num("equalisation_time", "Time constant of the pressure equalisation while tipped.", "s", 0.1,
+    num("equalisation_time", "Time constant of the pressure equalisation while tipped.", "s", 0.01,
         positive=True),
     num("refill_time", "A column that refills to the tip within this time of standing up holds the device "
         "tipped.", "s", 1.0, positive=True),

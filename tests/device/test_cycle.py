@@ -119,6 +119,6 @@ def test_cycle_rows_and_summary(running):
 
 
 def test_a_humid_room_never_tips():
-    s = run(whole_case(room={"relative_humidity": 0.97}, time={"end": 60.0})).summary
+    s = run(whole_case(room={"relative_humidity": 0.99}, time={"end": 60.0})).summary
     assert s["outcome"] == "never_tips" and s["n_cycles"] == 0
     assert "humid" in s["outcome_reason"]
