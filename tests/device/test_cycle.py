@@ -122,3 +122,17 @@ def test_a_humid_room_never_tips():
     s = run(whole_case(room={"relative_humidity": 0.99}, time={"end": 60.0})).summary
     assert s["outcome"] == "never_tips" and s["n_cycles"] == 0
     assert "humid" in s["outcome_reason"]
+
+
+def test_the_running_device_demo_gives_its_recorded_result():
+    """cases/running_device.toml (invented scenario): recorded on this version, 21.06 s to the first
+    tip, a period settling at 5.353 s."""
+    from pathlib import Path
+
+    from fvsolver.case import load_case
+
+    s = run(load_case(Path(__file__).parents[2] / "cases" / "running_device.toml")).summary
+    assert s["outcome"] == "running"
+    assert s["first_tip_s"] == pytest.approx(21.056, rel=1e-3)
+    assert s["period_s"] == pytest.approx(5.353, rel=2e-3)
+    assert 600 < s["dips_per_hour"] < 700 and s["water_per_day_kg"] > 0
