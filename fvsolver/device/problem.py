@@ -186,6 +186,10 @@ class DeviceProblem:
             scale[self.i_mp] = 1e-3 * self.body.initial_pool_mass
         return scale
 
+    def admissible(self, y: np.ndarray) -> bool:
+        """No condensate inventory below zero (the stepper retakes such a step at first order)."""
+        return self.inner.size == 0 or float(y[self.i_c].min()) >= 0.0
+
     def vapour_mass(self, y: np.ndarray) -> float:
         """Working-fluid vapour in the head, kg."""
         return self.vapour_reference + float(y[self.i_mv])
@@ -436,7 +440,7 @@ class DeviceProblem:
         # the vapour temperature (the wall cells' mean) sets p_v = m_v R T_v / V: a rank-one coupling
         # of every wall face to every wall cell
         p_v, t_v = ev.context["vapour"]["pressure"], ev.context["vapour"]["temperature"]
-        per_tv = 0.5 * p_v / t_v  # d(p_v / sqrt(T_v)) / dT_v at fixed m_v, in units of dp_v / sqrt(T_v)
+        per_tv = p_v / t_v  # dp_v / dT_v at fixed m_v (the flux sees T_v through p_v only)
         dts_dtv = lat * x["dj_dp"] * per_tv / (kap - g1)
         dJ_dtv = x["dj_dp"] * per_tv + x["dj_dt"] * dts_dtv
         # it is kept as the update u w^T (w: the wall cells' area weights), which fvsolver.linear

@@ -8,14 +8,19 @@ them through the evaluation ``context``:
   .. math:: q = h (T_a - T_s) + \\varepsilon\\sigma(T_{sur}^4 - T_s^4)
             - L_w(T_s)\\,\\phi\\,h_m(\\rho_{v,sat}(T_s) - \\rho_{v,\\infty})
 
-* inner wall (Hertz-Knudsen-Schrage condensation, positive when condensing):
+* inner wall (Hertz-Knudsen-Schrage condensation, positive when condensing), with the vapour
+  next to the interface at the interface's temperature (the vapour's bulk temperature T_v sets
+  only its pressure, p_v = m_v R T_v / (M V)):
 
-  .. math:: j = \\frac{2\\sigma}{2-\\sigma}\\sqrt{\\frac{M}{2\\pi R}}
-            \\left(\\frac{p_v}{\\sqrt{T_v}} - \\frac{p_{sat}(T_s)}{\\sqrt{T_s}}\\right),
+  .. math:: j = \\frac{2\\sigma}{2-\\sigma}\\sqrt{\\frac{M}{2\\pi R T_s}}
+            \\left(p_v - p_{sat}(T_s)\\right),
             \\qquad q = L(T_s)\\,j
 
-  A face re-evaporates only what it holds: an evaporating j is scaled by c+ / (c+ + c_ref),
-  with c its condensate inventory (kg/m2) and c+ a smooth positive part of c.
+  so a pure vapour in contact with a wet face at rest is at that face's saturation pressure
+  whatever the bulk temperature (Schrage 1953 with a film-side gas temperature; the usual
+  linearised interfacial form, as in ht.condensation.h_kinetic).  A face re-evaporates only what
+  it holds: an evaporating j is scaled by c+^2 / (c+^2 + c_ref^2) with c+ = max(c, 0), so a drying
+  face's inventory decays to zero and stops there.
 """
 from __future__ import annotations
 
@@ -116,18 +121,20 @@ class CondensingWall:
         t = self._clip(T_s)
         ps = self.fluid.saturation_pressure(t)
         dps = self.fluid.dsaturation_pressure_dT(t)
-        raw = beta * (vap["pressure"] / np.sqrt(vap["temperature"]) - ps / np.sqrt(t))
-        draw_dt = -beta * (dps / np.sqrt(t) - 0.5 * ps * t**-1.5)
-        draw_dp = beta / np.sqrt(vap["temperature"])
-        # the inventory limiter phi = c+ / (c+ + c_ref) with c+ = c_ref ln(1 + e^(c / c_ref)), a smooth
-        # positive part: an evaporating face slows as it dries and stops just below zero.  j stays
-        # monotone in T_s (only a kink where the face turns), which the surface solve needs.
+        root = np.sqrt(t)
+        excess = vap["pressure"] - ps
+        raw = beta * excess / root
+        draw_dt = -beta * (dps / root + 0.5 * excess / (t * root))
+        draw_dp = beta / root
+        # the inventory limiter phi = c+^2 / (c+^2 + c_ref^2), c+ = max(c, 0), smooth (C1) at zero: an
+        # evaporating face slows as it dries and stops at zero (dc/dt = raw phi(c) cannot carry c
+        # through zero; backward Euler keeps c >= 0 exactly).  j stays monotone in T_s (only a kink
+        # where the face turns), which the surface solve needs.
         c = vap["inventory"][faces]
         cr = self.film_reference
-        x = c / cr
-        plus = cr * np.logaddexp(0.0, x)
-        phi = plus / (plus + cr)
-        dphi = cr / (plus + cr) ** 2 * 0.5 * (1.0 + np.tanh(0.5 * x))  # sigmoid(x) = dplus/dc
+        plus = np.maximum(c, 0.0)
+        phi = plus * plus / (plus * plus + cr * cr)
+        dphi = 2.0 * plus * cr * cr / (plus * plus + cr * cr) ** 2
         scale = np.where(raw < 0.0, phi, 1.0)
         j = raw * scale
         return j, draw_dt * scale, draw_dp * scale, np.where(raw < 0.0, raw * dphi, 0.0)
