@@ -32,6 +32,7 @@ from __future__ import annotations
 
 import argparse
 import cProfile
+import functools
 import gc
 import io
 import math
@@ -68,6 +69,7 @@ import fvsolver.linear as fv_linear  # noqa: E402
 from fvsolver.boundary import Convection, FixedTemperature, PatchCondition  # noqa: E402
 from fvsolver.conduction import ConductionProblem  # noqa: E402
 from fvsolver.materials import Material  # noqa: E402
+from fvsolver.mesh import builders  # noqa: E402
 from fvsolver.mesh.head import device_head  # noqa: E402
 from fvsolver.stepper import StepperOptions, TimeStepper  # noqa: E402
 
@@ -96,7 +98,10 @@ SCHEMES = ("backward_euler", "bdf2")
 SCHEME_LABEL = {"backward_euler": "BE", "bdf2": "BDF2"}
 # fixed-step coefficients of alpha0 m(T+) + alpha1 m(T) + alpha2 m(T-) = dt F(T+)
 COEFFICIENTS = {"backward_euler": (1.0, -1.0, 0.0), "bdf2": (1.5, -2.0, 0.5)}
-CONFIG_OPTIONS = {"default": {}, "two-point": {"nonorthogonal_correction": False}}
+CONFIG_OPTIONS = {"default": {}, "two-point": {"nonorthogonal_correction": False}, "rectangle": {}}
+# the orthogonal anchor: a plain axisymmetric rectangle of the head mesh's cell count, with the
+# constructor's defaults, so it must take the two-point path by itself; its goal is stricter
+RATIO_GOALS = {"rectangle": 1.3}
 CONFIGS = list(CONFIG_OPTIONS)  # the ones timed (--configs)
 ORDERINGS = ("NATURAL", "MMD_ATA", "MMD_AT_PLUS_A", "COLAMD")
 # NATURAL is only factorised when its envelope (a close estimate of its fill for this
@@ -134,8 +139,32 @@ def head_mesh(target: int):
     return mesh, counts
 
 
+@functools.lru_cache(maxsize=2)
+def rectangle_mesh(cells: int):
+    """A plain axisymmetric rectangle (r 0-20 mm, z 0-40 mm) with about ``cells`` cells, 1:2."""
+    n_r = max(2, round(math.sqrt(cells / 2.0)))
+    return builders.rectangle(0.02, 0.04, n_r, 2 * n_r, "axisymmetric", material="glass")
+
+
+def rectangle_conditions() -> list[PatchCondition]:
+    """Linear conditions on the rectangle: a fixed foot, a warm top, convection at the side."""
+    return [
+        PatchCondition("right", (Convection(10.0, 295.0),)),
+        PatchCondition("bottom", (FixedTemperature(330.0),)),
+        PatchCondition("top", (Convection(50.0, 320.0),)),
+    ]
+
+
+def ratio_goal(config: str) -> float:
+    return RATIO_GOALS.get(config, RATIO_GOAL)
+
+
 def make_problem(mesh, config: str) -> ConductionProblem:
-    problem = ConductionProblem(mesh, MATERIALS, conditions(), **CONFIG_OPTIONS[config])
+    if config == "rectangle":
+        problem = ConductionProblem(rectangle_mesh(mesh.n_cells), MATERIALS, rectangle_conditions())
+        assert not problem.correct, "the plain rectangle must take the two-point path"
+    else:
+        problem = ConductionProblem(mesh, MATERIALS, conditions(), **CONFIG_OPTIONS[config])
     assert problem.linear and problem.constant_jacobian, "the benchmark needs a linear problem"
     return problem
 
@@ -602,7 +631,7 @@ def warm_up(log) -> None:
     for config in CONFIGS:
         fl = Floor.build(make_problem(mesh, config), "bdf2")
         lu = spla.splu(fl.matrix, permc_spec="COLAMD")
-        fl.steps(lu, fl.start(np.full(mesh.n_cells, T_INITIAL)), 3, [])
+        fl.steps(lu, fl.start(np.full(fl.matrix.shape[0], T_INITIAL)), 3, [])
     log(f"warm-up (numba kernels, code paths) {time.perf_counter() - t0:.1f} s")
 
 
@@ -625,7 +654,7 @@ def report(results: list[SizeResult], steps: int, repeats: int) -> list[str]:
       f"repeats; a measurement stops after {MIN_REPEATS} once it has used its time budget).")
     p("")
     p("| config | scheme | cells | nnz | floor (best ordering found) ms/step | floor (fvsolver's ordering) ms/step | fvsolver ms/step "
-      "| ratio fvsolver/floor | per-repeat ratios | Newton it/step | ratio <= 1.5 |")
+      "| ratio fvsolver/floor | per-repeat ratios | Newton it/step | ratio within goal |")
     p("|---|---|---:|---:|---:|---:|---:|---:|---:|---:|:---:|")
     verdicts = []
     for config in CONFIGS:
@@ -633,13 +662,13 @@ def report(results: list[SizeResult], steps: int, repeats: int) -> list[str]:
             for res in results:
                 run = res.runs[config, scheme]
                 ratio = run.ratio
-                ok = ratio <= RATIO_GOAL
+                ok = ratio <= ratio_goal(config)
                 verdicts.append(ok)
                 pr = run.paired_ratios
                 p(f"| {config} | {SCHEME_LABEL[scheme]} | {res.cells} | {res.nnz[config]} | {run.floor_ms:.3f} | "
                   f"{run.floor_fv_ms:.3f} | {run.fv_ms:.3f} | {ratio:.2f} | {min(pr):.2f}-{max(pr):.2f} "
                   f"({len(pr)}) | "
-                  f"{run.newton / max(run.steps, 1):.1f} | {'PASS' if ok else 'FAIL'} |")
+                  f"{run.newton / max(run.steps, 1):.1f} | {'PASS' if ok else 'FAIL'} (<= {ratio_goal(config)}) |")
     p("")
     p("## Growth of the cost per step with N (slope of log cost against log cells)")
     p("")
@@ -731,12 +760,13 @@ def report(results: list[SizeResult], steps: int, repeats: int) -> list[str]:
     p("")
     all_ratio = all(verdicts)
     all_exp = all(exp_ok)  # vacuous with a single size; reported as n/a below
-    p(f"GOAL ratio fvsolver/floor <= {RATIO_GOAL} at every size: {'PASS' if all_ratio else 'FAIL'}")
+    p(f"GOAL ratio fvsolver/floor <= {RATIO_GOAL} at every size ({', '.join(f'{c} <= {g}' for c, g in RATIO_GOALS.items())}): "
+      f"{'PASS' if all_ratio else 'FAIL'}")
     p(f"GOAL growth exponent <= {EXPONENT_GOAL}: {('PASS' if all_exp else 'FAIL') if exp_ok else 'n/a'}")
     for config in CONFIGS:
         rows = [res.runs[config, s] for res in results for s in SCHEMES]
-        ok = all(r.ratio <= RATIO_GOAL for r in rows)
-        p(f"  {config}: ratio {'PASS' if ok else 'FAIL'}")
+        ok = all(r.ratio <= ratio_goal(config) for r in rows)
+        p(f"  {config}: ratio <= {ratio_goal(config)} {'PASS' if ok else 'FAIL'}")
     same = all(v <= SAME_ANSWER_K for r in results for v in r.check.values())
     p(f"CHECK floor and fvsolver give the same temperatures (within {SAME_ANSWER_K:g} K): "
       f"{'PASS' if same else 'FAIL'}")

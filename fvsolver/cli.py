@@ -9,6 +9,10 @@ from pathlib import Path
 from fvsolver import __version__
 from fvsolver.errors import CaseError, FvsolverError, MeshError, SolverError
 from fvsolver.pipeline import EXIT_CASE, EXIT_INTERNAL, EXIT_INTERRUPTED, EXIT_OK, EXIT_SOLVER
+from fvsolver.safeguards import Terminated, stop_signals_as_interrupt
+from fvsolver.studies.commands import add_commands as add_study_commands
+from fvsolver.studies.commands import add_engine_options, open_engine
+from fvsolver.studies.commands import handlers as study_handlers
 
 EXIT_DIFFERS = 1  # compare: a difference beyond its tolerance (as diff does)
 
@@ -22,10 +26,13 @@ examples:
   fvsolver check cases/glass_bulb_cooling.toml
   fvsolver mesh cases/glass_bulb_cooling.toml --out meshes/head.vtu
   fvsolver verify --out verification
+  fvsolver revolve results/demo --angle 270            (3D cells of the fields, for ParaView)
+  fvsolver keys room                                   (case keys with unit, default, range)
+  fvsolver new my_head.toml                            (a commented starter case)
 
 exit codes: 0 success (a target not reached is a result, not an error), 1 compare: differences
-beyond the tolerances, 2 bad case file or arguments, 3 solver failure, 4 internal error,
-130 interrupted
+beyond the tolerances, 2 bad case file or arguments, 3 solver failure or a non-physical state,
+4 internal error, 130 interrupted (Ctrl-C), 143 stopped by SIGTERM
 """
 
 
@@ -39,7 +46,10 @@ def _parser() -> argparse.ArgumentParser:
                        ("sweep", "run a case over a grid of changed keys; one table row per run"),
                        ("compare", "compare a run's outputs with a baseline run's, within tolerances"),
                        ("check", "validate a case file only"),
-                       ("mesh", "write the case's mesh as VTU"), ("verify", "run the verification cases")):
+                       ("mesh", "write the case's mesh as VTU"), ("verify", "run the verification cases"),
+                       ("revolve", "revolve a run's fields about the axis into 3D cells for ParaView"),
+                       ("keys", "list every case-file key with its unit, default and range"),
+                       ("new", "write a commented starter case file")):
         s = sub.add_parser(name, help=text, description=text, epilog=EPILOG,
                            formatter_class=argparse.RawDescriptionHelpFormatter)
         g = s.add_mutually_exclusive_group()
@@ -54,6 +64,9 @@ def _parser() -> argparse.ArgumentParser:
                            help="continue the killed or interrupted run whose outputs are in DIR")
             s.add_argument("--checkpoint-every", type=float, default=30.0, metavar="SECONDS",
                            help="wall-clock seconds between checkpoints (default 30; 0: every step)")
+            s.add_argument("--no-uncertainty", dest="uncertainty", action="store_false",
+                           help="skip the two cheaper companion runs that estimate the numerical "
+                                "uncertainty of the time to target")
         if name == "sweep":
             s.add_argument("--vary", action="append", default=[], metavar="KEY.PATH=VALUES", required=True,
                            help="a key and its values: V1,V2,... (TOML values) or START:STOP:N; repeat "
@@ -61,8 +74,7 @@ def _parser() -> argparse.ArgumentParser:
             s.add_argument("--out", type=Path, default=None, help="output folder (default: results/<case name>_sweep)")
             s.add_argument("--overwrite", action="store_true", help="write into a non-empty output folder")
             s.add_argument("--plots", action="store_true", help="also draw every run's own plots and report")
-            s.add_argument("--jobs", type=int, default=1, metavar="N",
-                           help="runs at a time, in worker processes (default 1; up to the number of cores)")
+            add_engine_options(s)  # --jobs N, or --workers N / --scheduler ADDRESS (Dask)
         if name == "compare":
             s.add_argument("new", type=Path, help="output folder of the run to check")
             s.add_argument("baseline", type=Path, help="output folder of the baseline run")
@@ -76,10 +88,21 @@ def _parser() -> argparse.ArgumentParser:
             s.add_argument("--json", type=Path, default=None, help="also write the checks to this JSON file")
         if name == "mesh":
             s.add_argument("--out", type=Path, required=True, help="the VTU file to write")
+            s.add_argument("--overwrite", action="store_true", help="replace an existing file")
+        if name == "keys":
+            s.add_argument("prefix", nargs="?", default=None, help="only keys starting with this (e.g. room)")
+        if name == "new":
+            s.add_argument("file", type=Path, help="the case file to write (refused if it exists)")
+        if name == "revolve":
+            s.add_argument("folder", type=Path, help="output folder of a run (holding fields.pvd)")
+            s.add_argument("--sectors", type=int, default=36, help="angular steps (default 36)")
+            s.add_argument("--angle", type=float, default=270.0, metavar="DEG",
+                           help="swept angle in degrees (default 270: a cut-away to see inside; 360: whole)")
         if name == "verify":
             s.add_argument("--out", type=Path, default=Path("verification"), help="folder for the report")
             s.add_argument("--slow", action="store_true", help="add the finest refinement levels")
             s.add_argument("--case", action="append", default=None, help="run only cases whose name contains this")
+    add_study_commands(sub, EPILOG)  # envelope, converge, fit
     return p
 
 
@@ -92,12 +115,19 @@ def _run(args) -> int:
     from fvsolver.case import load_case
     from fvsolver.pipeline import run
 
+    if args.resume is not None and args.out is not None and args.out.resolve() != args.resume.resolve():
+        raise CaseError(f"--resume {args.resume} --out {args.out}: a resumed run continues in its own folder; "
+                        "leave out --out (or copy the folder first and resume the copy)")
     case = load_case(args.case)
     out = args.resume or args.out or Path("results") / args.case.stem
+    if args.resume is None and not args.overwrite:
+        out = _fresh_folder(args, out)
     bar = ProgressBar(case["time"]["end"]) if sys.stderr.isatty() and not args.quiet else None
     try:
-        result = run(case, out, overwrite=args.overwrite, argv=sys.argv, resume=args.resume is not None,
-                     progress=bar, checkpoint_every=args.checkpoint_every)
+        with stop_signals_as_interrupt() as stop:  # SIGTERM stops the run as Ctrl-C does
+            result = run(case, out, overwrite=args.overwrite, argv=sys.argv, resume=args.resume is not None,
+                         progress=bar, checkpoint_every=args.checkpoint_every,
+                         uncertainty=args.uncertainty and args.resume is None)
     finally:
         if bar is not None:
             bar.close()
@@ -106,16 +136,28 @@ def _run(args) -> int:
                f"({s['n_steps']} steps, {s['n_cells']} cells)")
     if s.get("outcome"):
         _say(args, "  " + cycle_lines(s))
-    if s["target_reached"] is not None and not s.get("outcome"):
+    elif s.get("target_pressure_drop_pa") is not None:
         if s["target_reached"]:
             _say(args, f"  target {s['target_pressure_drop_pa']:.0f} Pa reached at t = {s['time_to_target_s']:.2f} s")
-        else:
+        elif s["target_reached"] is False:
             _say(args, f"  target {s['target_pressure_drop_pa']:.0f} Pa NOT reached: {s['stall_reason']}")
-    if s["target_reached"] is not None:
+        else:
+            _say(args, f"  target {s['target_pressure_drop_pa']:.0f} Pa not reached before the run stopped "
+                       f"({s['status']}; largest difference {s['max_pressure_drop_pa']:.0f} Pa)")
+        u = s.get("numerical_uncertainty") or {}
+        if "total_relative" in u:
+            _say(args, "  numerical uncertainty of the time to target: " + ", ".join(
+                f"{k.replace('_', ' ')} ±{v['estimate_s']:.2g} s" for k, v in u.items() if isinstance(v, dict)
+                and "estimate_s" in v) + f" (together ±{100 * u['total_relative']:.2g} %)")
+        if s.get("field_times_not_reached_s"):
+            _say(args, f"  the run stopped at t = {s['end_time_s']:.6g} s: field times " + ", ".join(
+                f"{t:g}" for t in s["field_times_not_reached_s"]) + " s were not reached"
+                + (" (a field was written at the target crossing)" if s["target_reached"] else ""))
+    if s.get("max_internal_pressure_pa") is not None:
         _say(args, f"  largest internal pressure {s['max_internal_pressure_pa']:.0f} Pa, largest glass temperature "
                    f"{s['max_glass_temperature_k']:.2f} K")
-        for w in s["warnings"]:
-            _say(args, f"  WARNING: {w}")
+    for w in s["warnings"]:
+        _say(args, f"  WARNING: {w}")
     mass = ", ".join(f"{k} {v:.1e}" for k, v in s["mass_balance_relative_error"].items())
     _say(args, f"  temperature {s['min_temperature_k']:.3f} .. {s['max_temperature_k']:.3f} K; "
                f"energy balance error {s['energy_balance_relative_error']:.2e}" + (f"; mass {mass}" if mass else ""))
@@ -123,9 +165,12 @@ def _run(args) -> int:
         for key in ("n_rejected_steps", "n_newton_failures", "n_newton_iterations", "end_time_s"):
             _say(args, f"  {key}: {s[key]}")
         if s.get("room"):
-            _say(args, "  room: " + ", ".join(f"{k} {v:.4g}" for k, v in s["room"].items()))
+            _say(args, "  room: " + ", ".join(f"{k} {v:.4g}" if v is not None else f"{k} none"
+                                              for k, v in s["room"].items()))
     _say(args, f"  outputs in {out}")
-    return EXIT_INTERRUPTED if s["status"] == "interrupted" else EXIT_OK
+    if s["status"] == "interrupted":
+        return stop.exit_code or EXIT_INTERRUPTED
+    return EXIT_OK
 
 
 def cycle_lines(s: dict) -> str:
@@ -160,9 +205,12 @@ def _sweep(args) -> int:
             result = f"target reached at t = {row['time_to_target_s']:.2f} s"
         else:
             result = f"target NOT reached: {row['stall_reason']}"
-        _say(args, f"  [{index + 1}/{count}] {what}: {result} ({row['wall_time_s']:.1f} s)")
+        running = f", {engine.running()} running" if engine is not None else ""
+        _say(args, f"  [{index + 1}/{count}{running}] {what}: {result} ({row['wall_time_s']:.1f} s)")
 
-    rows = sweep(case, varies, out, overwrite=args.overwrite, plots=args.plots, progress=progress, jobs=args.jobs)
+    with open_engine(args) as engine:
+        rows = sweep(case, varies, out, overwrite=args.overwrite, plots=args.plots, progress=progress,
+                     jobs=args.jobs, engine=engine)
     failed = sum(r["status"] == "failed" for r in rows)
     _say(args, f"{len(rows)} runs, {failed} failed; table in {out / 'sweep.csv'}")
     return EXIT_SOLVER if failed else EXIT_OK
@@ -180,7 +228,10 @@ def _compare(args) -> int:
     _say(args, result.table())
     failed = [c.quantity for c in result.checks if c.passed is False]
     if args.json is not None:
-        atomic_write_text(args.json, json.dumps(result.as_dict(), indent=2, default=str))
+        from fvsolver.outputs.paths import output_file
+
+        atomic_write_text(output_file(args.json, overwrite=True, option="--json", example="checks.json"),
+                          json.dumps(result.as_dict(), indent=2, default=str))
     if failed:
         print(f"DIFFERS in {len(failed)} of {len(result.checks)} checks: {', '.join(failed)}",
               file=sys.stderr if args.quiet else sys.stdout)
@@ -189,10 +240,25 @@ def _compare(args) -> int:
     return EXIT_OK
 
 
-class ProgressBar:
-    """One line on the terminal: simulated time, step, pressure difference against the target."""
+def _fresh_folder(args, out: Path) -> Path:
+    """A folder that holds an earlier run (its run_info.json) is kept: the new run goes to the
+    first free ``NAME-2``, ``NAME-3`` ... beside it, and the user is told.  Any other non-empty
+    folder is refused later, as before."""
+    if not (out.is_dir() and (out / "run_info.json").is_file()):
+        return out
+    k = 2
+    while (fresh := out.with_name(f"{out.name}-{k}")).exists():
+        k += 1
+    print(f"note: {out} holds an earlier run, kept as it is; writing to {fresh} "
+          "(pass --overwrite to replace the earlier run)", file=sys.stderr)
+    return fresh
 
-    def __init__(self, end_time: float, width: int = 28):
+
+class ProgressBar:
+    """One line on the terminal: simulated time against the end time, step, and for a device the
+    pressure difference against the target, each with a bar."""
+
+    def __init__(self, end_time: float, width: int = 20):
         import time
 
         self.end, self.width, self.clock, self.last = end_time, width, time.monotonic, 0.0
@@ -202,14 +268,20 @@ class ProgressBar:
         if now - self.last < 0.2:
             return
         self.last = now
-        done = min(1.0, stepper.t / self.end)
-        bar = "#" * int(done * self.width) + "." * (self.width - int(done * self.width))
-        text = f"\r[{bar}] t = {stepper.t:9.3f} s  dt = {stepper.last_dt:8.3g} s"
+        text = f"\r{self.bar(stepper.t / self.end)} time {stepper.t:9.3f} s  dt = {stepper.last_dt:8.3g} s"
         if monitor is not None:
+            # a run that stops at its target ends long before time.end: show that progress too
             p = monitor.problem.pressures(stepper.y)["pressure_drop_pa"]
-            text += f"  dp = {p:8.1f} / {monitor.target(stepper.y):.1f} Pa"
+            target = monitor.target(stepper.y)
+            text += f"  {self.bar(p / target if target > 0 else 0.0, self.width // 2)} dp {p:7.1f} / {target:.1f} Pa"
         sys.stderr.write(text)
         sys.stderr.flush()
+
+    def bar(self, fraction: float, width: int | None = None) -> str:
+        """``[#####.....]`` filled to ``fraction`` (clipped to 0..1)."""
+        width = width or self.width
+        filled = int(min(1.0, max(0.0, fraction)) * width)
+        return "[" + "#" * filled + "." * (width - filled) + "]"
 
     def close(self) -> None:
         sys.stderr.write("\n")
@@ -218,8 +290,13 @@ class ProgressBar:
 def _check(args) -> int:
     from fvsolver.case import load_case
 
+    from fvsolver.case.limits import estimate
+    from fvsolver.case.setup_check import build_checked
+
     case = load_case(args.case)
-    _say(args, f"{args.case}: valid (schema {case['schema_version']}, sha256 {case.sha256[:12]})")
+    build_checked(case)  # what run sets up, check sets up: the mesh, the properties, the conditions
+    _say(args, f"{args.case}: valid (schema {case['schema_version']}, sha256 {case.sha256[:12]}; "
+               f"{estimate(case.data).describe()})")
     return EXIT_OK
 
 
@@ -228,8 +305,16 @@ def _mesh(args) -> int:
     from fvsolver.case.build import build_mesh
     from fvsolver.vtk_io import write_mesh
 
-    mesh = build_mesh(load_case(args.case))
-    args.out.parent.mkdir(parents=True, exist_ok=True)
+    from fvsolver.outputs.paths import output_file
+
+    output_file(args.out, args.overwrite, example="mesh.vtu")  # before the work, as run checks its --out
+    case = load_case(args.case)
+    try:
+        mesh = build_mesh(case)
+    except MeshError:
+        from fvsolver.case.setup_check import build_checked
+
+        mesh = build_checked(case).mesh  # raises the failure against the case file's line
     write_mesh(mesh, args.out)
     _say(args, f"wrote {args.out}: {mesh.n_cells} cells, patches {', '.join(mesh.patch_names)}")
     return EXIT_OK
@@ -245,10 +330,42 @@ def _verify(args) -> int:
     return EXIT_OK if all(c.passed for r in reports for c in r.checks) else EXIT_SOLVER
 
 
+def _revolve(args) -> int:
+    from fvsolver.revolve import revolve_run
+
+    entries = revolve_run(args.folder, args.sectors, args.angle)
+    _say(args, f"wrote {args.folder / 'revolved.pvd'}: {len(entries)} times, {args.sectors} sectors over "
+               f"{args.angle:g} deg")
+    return EXIT_OK
+
+
+def _keys(args) -> int:
+    import shutil
+
+    from fvsolver.case.docs import keys_table
+
+    print(keys_table(shutil.get_terminal_size((100, 24)).columns, args.prefix))
+    return EXIT_OK
+
+
+def _new(args) -> int:
+    from fvsolver.case.docs import starter_case
+    from fvsolver.outputs.files import atomic_write_text
+
+    if args.file.exists():
+        raise CaseError(f"new {args.file}: the file exists (expected a new file name); choose another name")
+    args.file.parent.mkdir(parents=True, exist_ok=True)
+    atomic_write_text(args.file, starter_case())
+    _say(args, f"wrote {args.file}: edit it, check it with `fvsolver check {args.file}`, run it with "
+               f"`fvsolver run {args.file}`")
+    return EXIT_OK
+
+
 def main(argv: list[str] | None = None) -> int:
     args = _parser().parse_args(argv)
     handler = {"run": _run, "sweep": _sweep, "compare": _compare, "check": _check, "mesh": _mesh,
-               "verify": _verify}[args.command]
+               "verify": _verify, "revolve": _revolve, "keys": _keys, "new": _new,
+               **study_handlers(lambda a: lambda text: _say(a, text))}[args.command]
     try:
         return handler(args)
     except (CaseError, MeshError) as exc:
@@ -257,9 +374,9 @@ def main(argv: list[str] | None = None) -> int:
     except SolverError as exc:
         print(f"solver failure: {exc}", file=sys.stderr)
         return EXIT_SOLVER
-    except KeyboardInterrupt:
+    except KeyboardInterrupt as exc:
         print("interrupted", file=sys.stderr)
-        return EXIT_INTERRUPTED
+        return 128 + exc.signum if isinstance(exc, Terminated) else EXIT_INTERRUPTED
     except FvsolverError as exc:
         print(f"error: {exc}", file=sys.stderr)
         return EXIT_CASE

@@ -163,9 +163,7 @@ class ConductionProblem:
                 )
         self.n = mesh.n_cells
         self.correct = bool(nonorthogonal_correction) and (
-            self.stencil.nonorthogonal
-            or bool(np.any(np.abs(self.stencil.boundary_offset) > 1e-10 * np.abs(self.stencil.boundary_distance)[:, None]))
-        )
+            self.stencil.nonorthogonal or self.stencil.boundary_nonorthogonal)
         self._constant_k = all(not m.context_dependent and m.conductivity.is_constant for m in self.materials)
         self._constant_c = all(not m.context_dependent and m.heat_capacity.is_constant for m in self.materials)
         self._cells = [np.flatnonzero(mesh.cell_material == i) for i in range(len(self.materials))]

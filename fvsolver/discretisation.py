@@ -20,7 +20,9 @@ import scipy.sparse as sp
 
 from fvsolver.mesh.core import Mesh
 
-ORTHOGONAL_TOLERANCE = 1e-10  # |S - E| / |S| below this counts as orthogonal
+ORTHOGONAL_TOLERANCE = 1e-10  # |S - E| / |S| below this counts as orthogonal, at the least
+# how many times its own rounding bound a face's |S - E| / |S| must exceed to count as non-orthogonal
+ROUNDING_MARGIN = 8.0
 
 
 @dataclass(frozen=True)
@@ -33,7 +35,8 @@ class Stencil:
     dist_owner, dist_neighbour : (n_faces,) m, normal distances from the centres to the face
     weight_owner : (n_faces,) interpolation weight of the owner's value at the face
     tangent : (n_faces, 2) m2, S_f - E_f
-    nonorthogonal : bool, whether any face needs the correction
+    nonorthogonal : bool, whether any interior face needs the correction
+    boundary_nonorthogonal : bool, whether any boundary face's normal misses its cell centre
     boundary_distance : (n_boundary,) m, normal distance from cell centre to boundary face
     boundary_offset : (n_boundary, 2) m, from the cell centre to the foot of the face normal
     lsq_owner, lsq_neighbour : (n_faces, 2) 1/m, least-squares gradient weights
@@ -58,10 +61,38 @@ class Stencil:
     owner_pos: np.ndarray
     neighbour_pos: np.ndarray
     max_nonorthogonality_deg: float
+    boundary_nonorthogonal: bool = False
 
 
 def _dot(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     return a[:, 0] * b[:, 0] + a[:, 1] * b[:, 1]
+
+
+def centroid_rounding(nodes: np.ndarray, cells: np.ndarray) -> np.ndarray:
+    """A bound on the rounding error of each cell's area centroid, m.
+
+    The centroid (``mesh.core.polygon_metrics``) is summed about the cell's first node
+    :math:`x_0`: :math:`c = x_0 + \\sum_k (x_k + x_{k+1}) \\times_k / (6A)`. Its rounding is that of
+    the local coordinates (cell-sized), of the shoelace sums over ``A`` and of adding back
+    :math:`x_0`, so it grows with the coordinates' magnitude, not only with the cell size.
+
+    Returns
+    -------
+    (n_cells,) m, a bound of |computed - exact| for either coordinate
+    """
+    x0 = nodes[cells[:, 0]]
+    x = nodes[cells, 0] - x0[:, None, 0]
+    y = nodes[cells, 1] - x0[:, None, 1]
+    xn = np.roll(x, -1, axis=1)
+    yn = np.roll(y, -1, axis=1)
+    size = (np.abs(x * yn) + np.abs(xn * y)).sum(axis=1)  # rounding scale of the cross products
+    area = np.abs(0.5 * (x * yn - xn * y).sum(axis=1))
+    local = np.maximum(np.abs(x).max(axis=1), np.abs(y).max(axis=1))
+    # the shoelace numerator (|x_k + x_k+1| <= 2 local) and the area's own relative rounding
+    shoelace = (2.0 * local * size / 6.0 + local * 0.5 * size) / np.maximum(area, 1e-300)
+    # the local coordinates' own rounding and adding back the first node
+    offset = 3.0 * local + np.abs(x0).max(axis=1)
+    return np.finfo(float).eps * (shoelace + offset)
 
 
 def build_stencil(mesh: Mesh, symmetry_faces: np.ndarray) -> Stencil:
@@ -83,7 +114,12 @@ def build_stencil(mesh: Mesh, symmetry_faces: np.ndarray) -> Stencil:
     weight_owner = dist_neighbour / (dist_owner + dist_neighbour)
     tangent = mesh.face_areas[:, None] * n - geometry[:, None] * d
     rel = np.hypot(tangent[:, 0], tangent[:, 1]) / np.maximum(mesh.face_areas, 1e-300)
-    nonorth = bool(np.any(rel > ORTHOGONAL_TOLERANCE))
+    # a face counts as orthogonal when |S - E| / |S| is within what the rounding of its two centres
+    # can produce (|delta d| / |d|): fine plain rectangles then keep the two-point stencil
+    rounding = centroid_rounding(mesh.nodes, mesh.cells)
+    allowed = np.maximum(ORTHOGONAL_TOLERANCE, ROUNDING_MARGIN * (rounding[mesh.owner] + rounding[mesh.neighbour])
+                         / np.maximum(np.hypot(d[:, 0], d[:, 1]), 1e-300))
+    nonorth = bool(np.any(rel > allowed))
     angle = np.degrees(np.arccos(np.clip(nd / np.hypot(d[:, 0], d[:, 1]), -1.0, 1.0)))
 
     bc = mesh.boundary_cell
@@ -92,6 +128,12 @@ def build_stencil(mesh: Mesh, symmetry_faces: np.ndarray) -> Stencil:
     db = xb - mesh.cell_centres[bc]
     bdist = _dot(db, nb)
     boffset = db - bdist[:, None] * nb
+    # the same scale-aware test for the boundary faces: the offset must exceed what the rounding
+    # of the cell centre and of the face centre (~ eps |x_b|) can produce
+    eps = np.finfo(float).eps
+    allowed_b = np.maximum(ORTHOGONAL_TOLERANCE * np.abs(bdist),
+                           ROUNDING_MARGIN * (rounding[bc] + 4.0 * eps * np.abs(xb).max(axis=1)))
+    boundary_nonorth = bool(np.any(np.abs(boffset) > allowed_b[:, None]))
 
     # least squares: M_P = sum w d d^T over neighbours, boundary faces and mirror ghosts
     ncell = mesh.n_cells
@@ -145,4 +187,5 @@ def build_stencil(mesh: Mesh, symmetry_faces: np.ndarray) -> Stencil:
         owner_pos=pos[ncell:ncell + nf].copy(),
         neighbour_pos=pos[ncell + nf:].copy(),
         max_nonorthogonality_deg=float(angle.max()) if len(angle) else 0.0,
+        boundary_nonorthogonal=boundary_nonorth,
     )

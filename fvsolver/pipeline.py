@@ -12,12 +12,15 @@ from pathlib import Path
 import numpy as np
 
 from fvsolver import __version__
-from fvsolver.case.build import Setup, build
+from fvsolver.case.build import Setup
 from fvsolver.case.loader import Case, thaw
+from fvsolver.case.setup_check import build_checked
 from fvsolver.case.writer import dumps
 from fvsolver.conduction import heat_flux_vectors
 from fvsolver.errors import CaseError, SolverError
 from fvsolver.outputs.files import atomic_write_text
+from fvsolver.outputs.paths import clean_partial_files
+from fvsolver.safeguards import StateWatch, plain_title
 from fvsolver.stepper import TimeStepper
 
 EXIT_OK, EXIT_CASE, EXIT_SOLVER, EXIT_INTERNAL, EXIT_INTERRUPTED = 0, 2, 3, 4, 130
@@ -46,7 +49,13 @@ class Result:
     cycles: list = field(default_factory=list, repr=False)   # a whole device's cycles.csv rows
 
 
-def _history_row(setup: Setup, stepper: TimeStepper, monitor) -> dict:
+def _history_row(setup: Setup, stepper: TimeStepper, monitor, evaluation=None) -> dict:
+    """One row of history.csv; ``evaluation`` gives the rates of the initial state (before any
+    step the stepper has none), so that the first row shows the t = 0 rates, not zeros."""
+    from types import SimpleNamespace
+
+    from fvsolver.outputs.columns import device_columns
+
     mesh = setup.mesh
     T = stepper.y[: mesh.n_cells]
     row = {"time_s": stepper.t, "step_s": stepper.last_dt, "min_temperature_k": float(T.min()),
@@ -54,10 +63,12 @@ def _history_row(setup: Setup, stepper: TimeStepper, monitor) -> dict:
     for i, name in enumerate(mesh.material_names):
         sel = mesh.cell_material == i
         row[f"mean_{name}_temperature_k"] = float(np.average(T[sel], weights=mesh.cell_volumes[sel]))
-    ev = stepper.last_evaluation
+    ev = stepper.last_evaluation if evaluation is None else evaluation
     row["heat_in_w"] = float(ev.heat_in) if ev is not None else 0.0
     if monitor is not None:
-        row.update(monitor.history_columns(stepper))
+        view = stepper if evaluation is None else SimpleNamespace(y=stepper.y, t=stepper.t, last_evaluation=ev)
+        row.update(monitor.history_columns(view))
+        row.update(device_columns(setup.problem, ev))
     for group, err in stepper.balance_error.items():
         row[f"{group}_balance_error"] = float(err)
     return row
@@ -105,18 +116,37 @@ class FieldWriter:
             faces["evaporative_mass_flux"] = evap
             faces["condensation_mass_flux"] = cond
         name = f"fields_{len(self.entries):04d}.vtu"
-        write_fields(self.folder / name, mesh, cell, faces)
+        # the boundary faces go to their own files and collection, so that they never stretch
+        # the colour range of a cell field in ParaView
+        boundary = f"boundary_{len(self.entries):04d}.vtu"
+        write_fields(self.folder / name, mesh, cell, faces, boundary_path=self.folder / boundary)
         self.entries.append((t, name))
         self.fields.append((t, T.copy()))
+        write_pvd(self.folder / "boundary.pvd", [(time, f"boundary_{k:04d}.vtu") for k, (time, _) in
+                                                 enumerate(self.entries)])
         write_pvd(self.folder / "fields.pvd", self.entries)
 
 
+def _unfinished(folder: Path) -> bool:
+    """A run stopped before its end: no summary, or one that says interrupted."""
+    try:
+        return json.loads((folder / "summary.json").read_text()).get("status") == "interrupted"
+    except (OSError, ValueError, AttributeError):
+        return True
+
+
 def prepare_output(out: Path, overwrite: bool) -> Path:
+    from fvsolver.outputs.paths import output_folder
+
     out = Path(out)
-    if out.exists() and any(out.iterdir()) and not overwrite:
+    if out.is_dir() and any(out.iterdir()) and not overwrite:
+        if (out / "checkpoint.json").exists() and _unfinished(out):
+            raise CaseError(f"--out {out}: holds the checkpoint of an unfinished run; continue it with "
+                            f"--resume {out}, or start again with --overwrite")
         raise CaseError(f"--out {out}: the folder exists and is not empty (expected a new or empty folder); "
                         "choose another folder or pass --overwrite")
-    out.mkdir(parents=True, exist_ok=True)
+    output_folder(out)
+    clean_partial_files(out)
     stale = out / "summary.json"
     if stale.exists():  # never leave an old summary that claims a result for this run
         stale.unlink()
@@ -125,7 +155,7 @@ def prepare_output(out: Path, overwrite: bool) -> Path:
 
 def run(case: Case, out: str | Path | None = None, overwrite: bool = False, progress=None,
         argv: list[str] | None = None, resume: bool = False, checkpoint_every: float = 30.0,
-        plots: bool = True) -> Result:
+        plots: bool = True, uncertainty: bool = False) -> Result:
     """Run ``case``; write outputs into ``out`` when given.
 
     Parameters
@@ -137,22 +167,26 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
     resume : continue the run checkpointed in ``out`` (the case must be unchanged)
     checkpoint_every : wall-clock seconds between checkpoints (0: after every step)
     plots : draw the PNG plots and write report.md (a sweep leaves them out by default)
+    uncertainty : estimate the numerical uncertainty of the time to target from two cheaper
+        companion runs (:mod:`fvsolver.outputs.uncertainty`) and report it
     """
     import time as wall
 
     from fvsolver import checkpoint
 
+    # set up first (as `check` does): a case that cannot be set up leaves no output folder behind
+    setup = build_checked(case)
     if resume:
         if out is None:
             raise CaseError("--resume: needs the output folder of the run to continue")
         folder = Path(out)
-        meta, arrays = checkpoint.load(folder, case.sha256)
+        meta, arrays = checkpoint.load(folder, case.sha256, setup)
+        clean_partial_files(folder)
         stale = folder / "summary.json"
         if stale.exists():
             stale.unlink()
     else:
         folder = prepare_output(out, overwrite) if out is not None else None
-    setup = build(case)
     stepper = TimeStepper(setup.problem, setup.initial, 0.0, setup.end_time, setup.options,
                           stop_times=setup.field_times)
     monitor = cycle = None
@@ -178,34 +212,52 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
                 "command_line": argv or sys.argv, "packages": _versions()}
         atomic_write_text(folder / "run_info.json", json.dumps(info, indent=2))
     fields = FieldWriter(folder, setup) if folder is not None else None
+    watch = StateWatch(setup)  # non-physical states stop the run; out-of-range properties warn
     if resume:
         checkpoint.restore(stepper, monitor, meta, arrays)
         rows, worst = meta["rows"], meta["worst"]
+        watch.restore(meta.get("watch"))
         fields.entries = [tuple(e) for e in meta["field_entries"]]
     else:
+        initial = setup.problem.evaluate(setup.initial, 0.0)
         if fields is not None:
-            fields.write(0.0, setup.initial, setup.problem.evaluate(setup.initial, 0.0))
-        rows = [_history_row(setup, stepper, monitor)]
+            fields.write(0.0, setup.initial, initial)
+        rows = [_history_row(setup, stepper, monitor, initial)]
         worst: dict[str, float] = {}
     status, reason = "complete", None
-    last_checkpoint = wall.monotonic()
+    last_checkpoint = None  # the first step is checkpointed: any killed run can be resumed
+    max_steps = case["numerics"]["max_steps"]
+    last_good, bad = (stepper.t, stepper.y.copy()), None
 
     def save_checkpoint():
         if folder is not None:
-            checkpoint.save(folder, stepper, monitor, rows, fields.entries, case.sha256, worst)
+            checkpoint.save(folder, stepper, monitor, rows, fields.entries, case.sha256, worst,
+                            extra={"watch": watch.state()})
 
     # a run killed after its target but before its summary has nothing left to step
     finished = (monitor is not None and monitor.time_to_target is not None
                 and setup.device.target.stop_when_reached)
     try:
-        while not finished and stepper.step():
+        # step() returns False after the step that lands on the end time: that step is still
+        # processed (history row, target crossing, safety figures) before the loop ends
+        while not finished and stepper.status == "running":
+            stepper.step()
+            if stepper.status == "failed":
+                break
             if cycle is not None and cycle.located(stepper):
                 continue  # the tip lies inside the step: it is taken again to end there
+            bad = watch.check(stepper.y, stepper.t) or _step_limit(stepper, max_steps)
+            if bad is not None:
+                break
+            last_good = (stepper.t, stepper.y.copy())
             for g, err in stepper.balance_error.items():
                 worst[g] = max(worst.get(g, 0.0), float(err))
             reached = monitor.after_step(stepper) if monitor is not None else False
             if cycle is not None:
                 cycle.after_step(stepper, monitor)
+            if reached and fields is not None and monitor.time_to_target < stepper.t:
+                # the field at the crossing itself, from the step's interpolant
+                fields.write(monitor.time_to_target, stepper.dense(monitor.time_to_target), None)
             for when, mass, temperature in rewettings:
                 if stepper.t == when:
                     stepper.reset(monitor.rewet(stepper.y, mass, temperature))
@@ -213,14 +265,20 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
             if fields is not None and np.any(np.isclose(stepper.t, setup.field_times, rtol=0, atol=1e-12)):
                 fields.write(stepper.t, stepper.y, stepper.last_evaluation)
                 _write_csv(folder / "history.csv", rows)
-            if folder is not None and wall.monotonic() - last_checkpoint >= checkpoint_every:
+            if folder is not None and (last_checkpoint is None or wall.monotonic() - last_checkpoint >= checkpoint_every):
                 save_checkpoint()
                 last_checkpoint = wall.monotonic()
             if progress is not None:
                 progress(stepper, monitor)
             if reached and setup.device.target.stop_when_reached or cycle is not None and cycle.finished:
                 break
-        if stepper.status == "failed":
+        if bad is None and stepper.status == "finished":
+            bad = watch.check(stepper.y, stepper.t)
+        if bad is not None:
+            status, reason = "failed", bad
+            if fields is not None and (not fields.entries or fields.entries[-1][0] < last_good[0]):
+                fields.write(*last_good, None)  # the last good state, for a look at what went wrong
+        elif stepper.status == "failed":
             status, reason = "failed", stepper.message
             save_checkpoint()
             if fields is not None and (not fields.entries or fields.entries[-1][0] < stepper.t):
@@ -231,28 +289,50 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
                 worst[g] = max(worst.get(g, 0.0), float(err))
             if fields is not None and (not fields.entries or fields.entries[-1][0] != stepper.t):
                 fields.write(stepper.t, stepper.y, stepper.last_evaluation)
-    except KeyboardInterrupt:
-        status, reason = "interrupted", f"stopped by the user at t = {stepper.t:.6g} s (continue with --resume)"
+    except KeyboardInterrupt as exc:  # Ctrl-C, or SIGTERM (safeguards.Terminated)
+        status = "interrupted"
+        reason = f"{getattr(exc, 'reason', 'stopped by the user')} at t = {stepper.t:.6g} s (continue with --resume)"
         save_checkpoint()
     if cycle is not None and status == "complete":
         cycle.finish(stepper.t, monitor, lambda: monitor.stall_reason(stepper.y, stepper.t))
     summary = _summary(case, setup, stepper, monitor, worst, status, reason)
     if cycle is not None:
         summary.update(cycle.summary())
+    summary["warnings"] += watch.warnings()
+    if uncertainty and monitor is not None:
+        from fvsolver.outputs.uncertainty import estimate
+
+        summary["numerical_uncertainty"] = estimate(case, summary)
     history = {k: np.array([r.get(k, np.nan) for r in rows]) for k in rows[-1]}
     if folder is not None:
         _write_csv(folder / "history.csv", rows)
         if cycle is not None:
             _write_csv(folder / "cycles.csv", cycle.cycles or [{"cycle": None}])
-        if plots:
-            _write_plots_and_report(folder, case, setup, summary, history, fields, cycle.cycles if cycle else ())
+        # the summary first: the computed result is kept whatever the drawing does
         atomic_write_text(folder / "summary.json", json.dumps(summary, indent=2))
+        if plots:
+            try:
+                _write_plots_and_report(folder, case, setup, summary, history, fields,
+                                        cycle.cycles if cycle else ())
+            except Exception as exc:  # only the physics decides the status
+                summary["warnings"].append(f"the plots or the report could not be written ({type(exc).__name__}: "
+                                           f"{str(exc)[:200]}); the results are in summary.json, history.csv and "
+                                           "the field files")
+                atomic_write_text(folder / "summary.json", json.dumps(summary, indent=2))
     result = Result(summary, history, stepper.y[: setup.mesh.n_cells].copy(), stepper.y.copy(), setup,
                     dict(stepper.cumulative_inflow), dict(cycle.event_inflow) if cycle else {},
                     list(cycle.cycles) if cycle else [])
     if status == "failed":
         raise SolverError(f"the run failed: {reason} (the last good fields are in the outputs)")
     return result
+
+
+def _step_limit(stepper, max_steps: int) -> str | None:
+    if stepper.counters.steps < max_steps or stepper.status != "running":
+        return None
+    return (f"the run took numerics.max_steps = {max_steps:,} steps and reached only t = {stepper.t:.6g} of "
+            f"{stepper.t_end:.6g} s (last step {stepper.last_dt:.3g} s); allow longer steps (tolerance, "
+            "min_step), shorten time.end, or raise numerics.max_steps")
 
 
 def _summary(case, setup, stepper, monitor, worst, status, reason) -> dict:
@@ -271,8 +351,12 @@ def _summary(case, setup, stepper, monitor, worst, status, reason) -> dict:
     }
     if monitor is not None:
         reached = monitor.time_to_target is not None
+        skipped = [float(t) for t in setup.field_times if stepper.t < t < setup.end_time]
         summary.update({
-            "target_reached": reached, "time_to_target_s": monitor.time_to_target,
+            # a run stopped early (interrupted, failed) has not decided whether the target is reachable
+            "target_reached": True if reached else (False if status == "complete" else None),
+            "time_to_target_s": monitor.time_to_target,
+            "field_times_not_reached_s": skipped,
             "target_pressure_drop_pa": monitor.target(stepper.y), "max_pressure_drop_pa": monitor.max_pressure_drop,
             "stall_reason": None if reached or status != "complete" else monitor.stall_reason(stepper.y, stepper.t),
             "max_internal_pressure_pa": monitor.max_absolute_pressure,
@@ -286,27 +370,47 @@ def _summary(case, setup, stepper, monitor, worst, status, reason) -> dict:
     return summary
 
 
+def _chosen_fields(fields, summary, most: int = 8) -> list:
+    """The fields to draw: every one written, but not a uniform initial field (it says nothing the
+    title does not); at most ``most``, always with the crossing and the last."""
+    chosen = list(fields.fields)
+    if len(chosen) > 1 and np.ptp(chosen[0][1]) < 1e-9 * max(1.0, float(np.abs(chosen[0][1]).max())):
+        chosen = chosen[1:]
+    if len(chosen) > most:
+        keep = set(np.linspace(0, len(chosen) - 1, most).astype(int))
+        crossing = summary.get("time_to_target_s")
+        keep |= {i for i, (t, _) in enumerate(chosen) if t == crossing}
+        chosen = [f for i, f in enumerate(chosen) if i in keep]
+    return chosen
+
+
 def _write_plots_and_report(folder: Path, case, setup, summary, history, fields, cycles=()) -> None:
     from fvsolver.outputs.report import write_report
+    from fvsolver.outputs.scenario import scenario_text
     from fvsolver.plotting import history_plot, temperature_field_plot
 
     plots = []
+    scenario = scenario_text(case, summary.get("target_pressure_drop_pa"))
     if fields is not None and fields.fields:
-        chosen = fields.fields if len(fields.fields) <= 4 else [fields.fields[i] for i in
-                                                                 np.linspace(0, len(fields.fields) - 1, 4).astype(int)]
+        chosen = _chosen_fields(fields, summary)
+        notes = ["target reached" if t == summary.get("time_to_target_s") else
+                 ("end" if t == summary["end_time_s"] else "") for t, _ in chosen]
         temperature_field_plot(setup.mesh, [T for _, T in chosen], folder / "temperature_field.png",
-                               times=[t for t, _ in chosen], title=case["title"])
+                               times=[t for t, _ in chosen], title=plain_title(case["title"]), subtitle=scenario,
+                               notes=notes)
         plots.append("temperature_field.png")
     if "pressure_drop_pa" in history:
         history_plot(history, folder / "history.png", summary["target_pressure_drop_pa"],
-                     summary["time_to_target_s"], title=case["title"])
+                     summary["time_to_target_s"], title=plain_title(case["title"]), subtitle=scenario,
+                     max_pressure_drop_pa=summary.get("max_pressure_drop_pa"))
         plots.append("history.png")
     if cycles:
         from fvsolver.plotting import cycle_plot
 
-        cycle_plot(history, cycles, folder / "cycles.png", title=case["title"])
+        cycle_plot(history, cycles, folder / "cycles.png", title=plain_title(case["title"]))
         plots.append("cycles.png")
-    write_report(folder, summary, case["title"] or (case.path.stem if case.path else "case"), _inputs(case), plots)
+    write_report(folder, summary, plain_title(case["title"] or (case.path.stem if case.path else "case")),
+                 _inputs(case), plots, scenario=scenario)
 
 
 def _inputs(case) -> dict:

@@ -16,7 +16,7 @@ from matplotlib.colors import Normalize  # noqa: E402
 import numpy as np  # noqa: E402
 
 from fvsolver.outputs.files import atomic_write_bytes  # noqa: E402
-from fvsolver.outputs.report import format_duration  # noqa: E402
+from fvsolver.outputs.report import format_duration, format_pressure  # noqa: E402
 
 if TYPE_CHECKING:  # pragma: no cover
     from fvsolver.mesh.core import Mesh
@@ -159,6 +159,8 @@ def temperature_field_plot(
     path: Path,
     times: Sequence[float] | float | None = None,
     title: str = "",
+    subtitle: str = "",
+    notes: Sequence[str] | None = None,
 ) -> None:
     """Draw one or more cell temperature fields on the mesh and write a PNG.
 
@@ -177,7 +179,13 @@ def temperature_field_plot(
     times : float or sequence of float, s, optional
         The time of each field, shown as its panel's title in s, min or h.
     title : str
-        Figure title.
+        Figure title (the user's words).
+    subtitle : str
+        The computed scenario, shown under the title.
+    notes : sequence of str, optional
+        One line per field added under its time (e.g. "target reached").
+
+    More than four fields are drawn in rows of four.
 
     Raises
     ------
@@ -195,6 +203,8 @@ def temperature_field_plot(
                 f"times: got {t.size} value(s) for {len(fields)} field(s); pass one time (s) per field"
             )
         labels = [f"t = {format_duration(v)}" for v in t]
+    if notes is not None:
+        labels = [f"{a}, {b}" if a and b else (a or b) for a, b in zip(labels, notes)]
     finite = np.concatenate([f[np.isfinite(f)] for f in fields])
     if finite.size == 0:
         raise ValueError("temperature: no finite value to draw; check the solution for NaN")
@@ -214,10 +224,15 @@ def temperature_field_plot(
     panel_w = float(np.clip(4.2 * aspect, 2.6, 7.0))
     panel_h = float(np.clip(panel_w / aspect, 2.4, 4.2))  # wide meshes get low panels
     n = len(fields)
-    fig, axes = plt.subplots(
-        1, n, figsize=(panel_w * n + 1.9, panel_h + (1.0 if title else 0.7)),
+    n_cols = min(n, 4)
+    n_rows = -(-n // n_cols)
+    fig, grid = plt.subplots(
+        n_rows, n_cols, figsize=(panel_w * n_cols + 1.9, (panel_h + 0.5) * n_rows + (0.9 if title else 0.4)),
         squeeze=False, sharex=True, sharey=True, layout="constrained",
     )
+    for ax in grid.ravel()[n:]:
+        ax.axis("off")
+    axes = grid.ravel()[:n][None, :]
     axisymmetric = mesh.coordinate_system == "axisymmetric"
     xname, yname = ("r", "z") if axisymmetric else ("x", "y")
     collection = None
@@ -246,15 +261,15 @@ def temperature_field_plot(
         ax.set_title(heading, fontsize=9)
         for side in ("top", "right"):
             ax.spines[side].set_visible(False)
-    axes[0, 0].set_ylabel(f"{yname} (mm)")
-    cbar = fig.colorbar(collection, ax=list(axes[0]), shrink=0.85, aspect=28, pad=0.02)
+    for row in grid:
+        row[0].set_ylabel(f"{yname} (mm)")
+    cbar = fig.colorbar(collection, ax=list(grid.ravel()), shrink=0.85, aspect=28, pad=0.02)
     cbar.set_label("temperature (K)")
     cbar.ax.tick_params(labelsize=8)
     celsius = cbar.ax.secondary_yaxis("left", functions=(_kelvin_to_celsius, _celsius_to_kelvin))
     celsius.set_ylabel("temperature (°C)")
     celsius.tick_params(labelsize=8)
-    if title:
-        fig.suptitle(title, fontsize=11)
+    _titles(fig, title, subtitle)
     _save(fig, path)
 
 
@@ -268,6 +283,10 @@ _TEMPERATURE_COLUMNS = (
 _RATE_COLUMNS = (
     ("evaporation_rate_kg_s", "evaporation from the cap", "#1b9e77"),
     ("condensation_rate_kg_s", "condensation in the head", "#6a51a3"),
+)
+_SPLIT_COLUMNS = (
+    ("condensing_rate_kg_s", "condensing on cold inner faces", "#9e9ac8"),
+    ("re_evaporation_rate_kg_s", "re-evaporating from warm inner faces", "#cb181d"),
 )
 _PRESSURE_COLUMNS = (
     ("head_pressure_pa", "head vapour space", "#807dba"),
@@ -302,6 +321,29 @@ def _history_columns(history: Mapping) -> dict[str, np.ndarray]:
     return cols
 
 
+#: Spans below which a history series is drawn flat: its changes are round-off, not physics.
+FLAT_RESOLUTION = {"pressure_pa": 1e-3, "temperature_k": 1e-5, "rate_mg_s": 1e-9, "water_g": 1e-9, "power_w": 1e-9}
+
+
+def _is_flat(values: np.ndarray, resolution: float) -> bool:
+    """True when the finite values span no more than ``resolution`` plus their round-off."""
+    v = values[np.isfinite(values)]
+    return v.size == 0 or float(v.max() - v.min()) <= resolution + 1e-9 * float(np.abs(v).max())
+
+
+def _plain_axis(ax, series: list, resolution: float) -> None:
+    """Plain tick labels (never matplotlib's offset text such as ``1e-11+6.427``); when every
+    series on ``ax`` is flat to within ``resolution``, limits around the value, so round-off
+    is not drawn as an oscillation."""
+    ax.yaxis.get_major_formatter().set_useOffset(False)
+    values = np.concatenate([np.asarray(v, dtype=float).ravel() for v in series]) if series else np.zeros(0)
+    values = values[np.isfinite(values)]
+    if values.size and all(_is_flat(np.asarray(v, dtype=float), resolution) for v in series):
+        centre = float(np.median(values))
+        half = max(abs(centre) * 0.05, 1000.0 * resolution)
+        ax.set_ylim(centre - half, centre + half)
+
+
 def _legend(ax, handles) -> None:
     """A legend in a row above the panel, clear of every curve."""
     if handles:
@@ -316,6 +358,8 @@ def history_plot(
     target_pressure_drop_pa: float | None = None,
     time_to_target_s: float | None = None,
     title: str = "",
+    subtitle: str = "",
+    max_pressure_drop_pa: float | None = None,
 ) -> None:
     """Plot a run's history in stacked panels on a shared time axis and write a PNG.
 
@@ -325,9 +369,13 @@ def history_plot(
        dashed line and the time to target marked (or "target not reached"); absolute
        pressures of the head and the second bulb on a twin axis in kPa when given;
     2. temperatures in K with degrees C on the right;
-    3. evaporation and condensation rates in mg/s, the cap's water in g on a twin axis.
+    3. evaporation and condensation rates in mg/s (the condensing and re-evaporating parts
+       apart when given: the net rate steps up whenever a warm inner face runs dry), the cap's
+       water in g on a twin axis;
+    4. the evaporative cooling power in W, when given.
 
-    Time is shown in min when the run is longer than 10 min, else in s.
+    Time is shown in min when the run is longer than 10 min, else in s.  A series that does
+    not change beyond round-off is drawn flat, and no axis uses an offset.
 
     Parameters
     ----------
@@ -344,7 +392,12 @@ def history_plot(
     time_to_target_s : float, optional, s
         When the target was reached (None: not reached).
     title : str
-        Figure title.
+        Figure title (the user's words).
+    subtitle : str
+        The computed scenario, shown under the title.
+    max_pressure_drop_pa : float, optional, Pa
+        The run's largest pressure difference, quoted when the target was not reached (the
+        same number as the summary's); default: the largest value in the history.
 
     Raises
     ------
@@ -364,7 +417,9 @@ def history_plot(
     temps = [c for c in _TEMPERATURE_COLUMNS if c[0] in cols]
     rates = [c for c in _RATE_COLUMNS if c[0] in cols]
     water = "cap_water_kg" in cols
-    kinds = ["pressure"] + (["temperature"] if temps else []) + (["rates"] if rates or water else [])
+    power = "evaporative_cooling_w" in cols
+    kinds = (["pressure"] + (["temperature"] if temps else []) + (["rates"] if rates or water else [])
+             + (["power"] if power else []))
     ratios = [1.35] + [1.0] * (len(kinds) - 1)
     fig, axes = plt.subplots(
         len(kinds), 1, sharex=True, squeeze=False, layout="constrained",
@@ -379,6 +434,8 @@ def history_plot(
     ax = axes[0]
     finite_dp = dp[np.isfinite(dp)]
     largest = float(np.abs(finite_dp).max()) if finite_dp.size else 0.0
+    peak = (float(max_pressure_drop_pa) if max_pressure_drop_pa is not None
+            else float(finite_dp.max()) if finite_dp.size else 0.0)
     target = None if target_pressure_drop_pa is None else float(target_pressure_drop_pa)
     scale_ref = max(largest, abs(target) if target is not None else 0.0)
     pscale, punit = (1e3, "kPa") if scale_ref >= 5e3 else (1.0, "Pa")
@@ -397,7 +454,9 @@ def history_plot(
         tt = float(time_to_target_s) / tscale
         order = np.argsort(t)
         y = target if target is not None else float(np.interp(float(time_to_target_s), t[order], dp[order]))
-        ax.plot([tt], [y / pscale], marker="o", ms=7, mfc="white", mec=_TARGET_COLOUR, mew=1.8, zorder=5)
+        # drawn over the frame: a crossing on the last step sits on the right edge
+        ax.plot([tt], [y / pscale], marker="o", ms=7, mfc="white", mec=_TARGET_COLOUR, mew=1.8, zorder=5,
+                clip_on=False)
         right = t_hi > t_lo and (tt - t_lo) / (t_hi - t_lo) > 0.6
         ax.annotate(
             f"target reached at {format_duration(time_to_target_s)}", xy=(tt, y / pscale),
@@ -408,11 +467,12 @@ def history_plot(
         )
     elif target is not None:
         ax.text(
-            0.015, 0.96, f"target not reached (largest {largest / pscale:.4g} {punit})",
+            0.015, 0.96, f"target not reached (largest {format_pressure(peak)})",
             transform=ax.transAxes, ha="left", va="top", fontsize=8.5, color=_TARGET_COLOUR,
             bbox={"boxstyle": "round,pad=0.3", "fc": "white", "ec": _TARGET_COLOUR, "lw": 0.6},
         )
     ax.set_ylabel(f"pressure difference ({punit})", fontsize=9)
+    ax.yaxis.get_major_formatter().set_useOffset(False)
     pressures = [c for c in _PRESSURE_COLUMNS if c[0] in cols]
     if pressures:
         twin = ax.twinx()
@@ -422,6 +482,7 @@ def history_plot(
         twin.margins(y=0.1)
         twin.set_ylabel("absolute pressure (kPa)", fontsize=9)
         twin.tick_params(labelsize=8)
+        _plain_axis(twin, [cols[c[0]] / 1e3 for c in pressures], FLAT_RESOLUTION["pressure_pa"] / 1e3)
     _legend(ax, handles)
 
     # (2) temperatures
@@ -431,6 +492,7 @@ def history_plot(
         for key, label, colour in temps:
             handles += ax.plot(ts, cols[key], color=colour, lw=1.5, marker=marker, label=label)
         ax.set_ylabel("temperature (K)", fontsize=9)
+        _plain_axis(ax, [cols[c[0]] for c in temps], FLAT_RESOLUTION["temperature_k"])
         celsius = ax.secondary_yaxis("right", functions=(_kelvin_to_celsius, _celsius_to_kelvin))
         celsius.set_ylabel("temperature (°C)", fontsize=9)
         celsius.tick_params(labelsize=8)
@@ -440,25 +502,60 @@ def history_plot(
     if rates or water:
         ax = axes[kinds.index("rates")]
         handles = []
+        split = [c for c in _SPLIT_COLUMNS if c[0] in cols]
+        grams = cols["cap_water_kg"] * 1e3 if water else None
+        constant_water = water and rates and _is_flat(grams, FLAT_RESOLUTION["water_g"])
         for key, label, colour in rates:
+            if split and key == "condensation_rate_kg_s":
+                label = "net condensation in the head"
+            if constant_water and key == "evaporation_rate_kg_s":
+                # a cap kept full (a reservoir) needs no line of its own
+                label += f" (its water stays at {np.nanmedian(grams):.3g} g)"
             handles += ax.plot(ts, cols[key] * 1e6, color=colour, lw=1.5, marker=marker, label=label)
+        steps = split and np.any(np.diff(cols["re_evaporation_rate_kg_s"]) < -0.05 * np.nanmax(
+            np.abs(cols["re_evaporation_rate_kg_s"]) + 1e-30))
+        for key, label, colour in split:
+            if steps and key == "re_evaporation_rate_kg_s":
+                label += " (drops as faces run dry)"
+            handles += ax.plot(ts, cols[key] * 1e6, color=colour, lw=1.0, ls=(0, (4, 2)), marker=marker, label=label)
         if rates:
             ax.set_ylabel("rate (mg/s)", fontsize=9)
-        if water:
+            _plain_axis(ax, [cols[c[0]] * 1e6 for c in rates + split], FLAT_RESOLUTION["rate_mg_s"])
+        if water and not constant_water:
             wax = ax.twinx() if rates else ax
-            handles += wax.plot(ts, cols["cap_water_kg"] * 1e3, color=_WATER_COLOUR, lw=1.3,
+            handles += wax.plot(ts, grams, color=_WATER_COLOUR, lw=1.3,
                                 ls=(0, (6, 2, 1, 2)), marker=marker,
                                 label="water held by the cap" + (" (right)" if rates else ""))
             wax.set_ylabel("cap water (g)", fontsize=9)
             wax.tick_params(labelsize=8)
+            _plain_axis(wax, [grams], FLAT_RESOLUTION["water_g"])
+        _legend(ax, handles)
+
+    # (4) the evaporative cooling power
+    if power:
+        ax = axes[kinds.index("power")]
+        handles = ax.plot(ts, cols["evaporative_cooling_w"], color="#1b9e77", lw=1.5, marker=marker,
+                          label="evaporative cooling of the cap (latent heat carried off)")
+        if "heat_in_w" in cols:
+            handles += ax.plot(ts, -cols["heat_in_w"], color="#636363", lw=1.2, ls=(0, (3, 1.5)), marker=marker,
+                               label="net heat leaving the head")
+        ax.set_ylabel("power (W)", fontsize=9)
+        _plain_axis(ax, [cols["evaporative_cooling_w"]], FLAT_RESOLUTION["power_w"])
         _legend(ax, handles)
 
     axes[-1].set_xlabel(f"time ({tunit})", fontsize=9)
     if t_hi > t_lo:
         axes[-1].set_xlim(t_lo, t_hi)
-    if title:
-        fig.suptitle(title, fontsize=11)
+    _titles(fig, title, subtitle)
     _save(fig, path)
+
+
+def _titles(fig, title: str, subtitle: str) -> None:
+    """The user's title, and under it the scenario computed from the inputs."""
+    if title and subtitle:
+        fig.suptitle(f"{title}\n{subtitle}", fontsize=10.5)
+    elif title or subtitle:
+        fig.suptitle(title or subtitle, fontsize=11)
 
 
 def sweep_plot(rows: Sequence[Mapping], keys: Sequence[str], path: Path, title: str = "") -> None:
@@ -504,6 +601,63 @@ def sweep_plot(rows: Sequence[Mapping], keys: Sequence[str], path: Path, title: 
     if others:
         ax.legend(fontsize=7.5, frameon=False)
     _save(fig, path)
+
+
+# one marker per outcome, in order of first appearance (filled for the first: the device runs)
+_OUTCOME_MARKERS = ("o", "X", "^", "s", "D", "v", "P", "*")
+
+
+def envelope_plot(temperatures: np.ndarray, humidities: np.ndarray, values: np.ndarray, outcomes: np.ndarray,
+                  completed: np.ndarray, path: Path, label: str, offset: float = 0.0, title: str = "") -> None:
+    """The operating map: a headline result over room temperature and relative humidity.
+
+    Filled contours of ``values`` where the device runs (finite values), the boundary where it
+    stops (drawn and labelled), and each run's outcome as its own marker.
+
+    Parameters
+    ----------
+    temperatures : (n_t,) K, room air temperatures (drawn in °C)
+    humidities : (n_h,) relative humidities (drawn in %)
+    values : (n_t, n_h) the headline result, NaN where the device does not run
+    outcomes : (n_t, n_h) the outcome of each run, in words
+    completed : (n_t, n_h) bool, False for a run that failed (it neither runs nor stops: the
+        boundary is not drawn through it)
+    label : the headline's name and unit, for the colour bar
+    offset : added to ``values`` for display (-273.15 for kelvin shown in °C)
+    """
+    t_c = np.asarray(temperatures, float) - 273.15
+    rh = 100.0 * np.asarray(humidities, float)
+    V = np.asarray(values, float).T + offset  # (n_h, n_t): rows along humidity
+    runs = np.isfinite(V)
+    fig, ax = plt.subplots(figsize=(7.4, 5.0), layout="constrained")
+    if runs.sum() >= 2 and np.nanmax(V) > np.nanmin(V):
+        levels = matplotlib.ticker.MaxNLocator(nbins=10).tick_values(np.nanmin(V), np.nanmax(V))
+        filled = ax.contourf(t_c, rh, np.ma.masked_invalid(V), levels=levels, cmap="viridis", extend="neither")
+        fig.colorbar(filled, ax=ax, label=label)
+    elif runs.any():  # one value only: shade the cells that run
+        ax.pcolormesh(t_c, rh, np.ma.masked_invalid(V), cmap="viridis", shading="nearest")
+    stops = ~runs & np.asarray(completed, bool).T
+    if runs.any() and stops.any():
+        indicator = np.ma.masked_array(runs.astype(float), mask=~(runs | stops))
+        boundary = ax.contour(t_c, rh, indicator, levels=[0.5], colors="black", linewidths=2.0)
+        ax.clabel(boundary, fmt={0.5: "stop boundary"}, fontsize=8.5, inline=True)
+    kinds = list(dict.fromkeys(str(o) for o in np.asarray(outcomes).T.ravel()))
+    TT, HH = np.meshgrid(t_c, rh)
+    O = np.asarray(outcomes).T.astype(str)
+    for k, kind in enumerate(kinds):
+        sel = O == kind
+        marker = _OUTCOME_MARKERS[k % len(_OUTCOME_MARKERS)]
+        ran = runs[sel].all()
+        ax.plot(TT[sel], HH[sel], ls="none", marker=marker, ms=6.5 if ran else 7.5,
+                mfc="white" if ran else "#c0392b", mec="black", mew=0.8, label=kind)
+    ax.set_xlabel("room air temperature (°C)")
+    ax.set_ylabel("relative humidity (%)")
+    ax.set_xlim(t_c.min() - 0.03 * np.ptp(t_c), t_c.max() + 0.03 * np.ptp(t_c))
+    ax.set_ylim(rh.min() - 0.03 * np.ptp(rh), rh.max() + 0.03 * np.ptp(rh))
+    ax.legend(title="outcome", fontsize=8, title_fontsize=8.5, loc="upper center", bbox_to_anchor=(0.5, -0.12),
+              ncol=min(4, len(kinds)), frameon=False)
+    if title:
+        ax.set_title(title, fontsize=10)
 
 
 def cycle_plot(history: Mapping[str, np.ndarray], cycles: Sequence[Mapping], path: Path, title: str = "") -> None:

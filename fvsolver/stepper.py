@@ -136,8 +136,13 @@ class TimeStepper:
         # per-unknown scale of the tolerances: 1 for temperatures (K), problem-defined otherwise
         self._scale = np.broadcast_to(np.asarray(getattr(problem, "tolerance_scale", 1.0), dtype=float),
                                       (problem.n,))
-        m0, _ = problem.capacity(self.y)
+        m0, dm0 = problem.capacity(self.y)
         self._history = _History([self.t], [self.y.copy()], [m0])
+        # a balance scale that cannot vanish: the content change that moves every unknown of the
+        # group by 1e-6 of its tolerance unit (1 microkelvin of the whole body for the energy), so a
+        # step that exchanges next to nothing compares its round-off with that, not with ~0
+        self._balance_floor = {g: 1e-6 * float(np.abs(np.broadcast_to(dm0, self.y.shape)[sl] * self._scale[sl]).sum())
+                               for g, sl in self._groups.items()}
         self._dts: list[float] = []           # newest first
         self._inflow: dict[str, float] = {g: 0.0 for g in self._groups}
         self._lu_cache: dict = {}
@@ -247,6 +252,7 @@ class TimeStepper:
         self.counters.steps -= 1
         self.counters.rejected += 1
         self.t = float(t)
+        self.status = "running"  # the step that was undone may have been the last one
         self._last_evaluation = None
         # the retaken stretch starts afresh (backward Euler): short steps keep its error at the
         # tolerance's level
@@ -408,7 +414,8 @@ class TimeStepper:
             w_new[g] = (dt * inflow[g] + a2 * self._inflow[g]) / a0
             stored = float((m_new[sl] - h.m[0][sl]).sum())  # differences first: no cancellation of totals
             # relative to the change, the gross exchange, or the round-off level of the total itself
-            scale = max(abs(stored), dt * self._gross[g], 1e-13 * float(np.abs(m_new[sl]).sum()), 1e-300)
+            scale = max(abs(stored), dt * self._gross[g], 1e-13 * float(np.abs(m_new[sl]).sum()),
+                        self._balance_floor[g], 1e-300)
             self.balance_error[g] = abs(stored - w_new[g]) / scale
         err = 0.0
         if opt.adaptive:
@@ -440,7 +447,7 @@ class TimeStepper:
             self._gross[g] = gross
             w_new[g] = (dt * inflow + a2 * self._inflow[g]) / a0
             # the round-off floor: 1e-13 of the content of the body 100 K from the reference
-            scale = max(abs(stored), dt * gross, 1e-11 * op.capacity_total, 1e-300)
+            scale = max(abs(stored), dt * gross, 1e-11 * op.capacity_total, self._balance_floor[g], 1e-300)
             self.balance_error[g] = abs(stored - w_new[g]) / scale
         err = 0.0
         if opt.adaptive:

@@ -167,7 +167,7 @@ def _one_blas_thread_per_worker():
 
 
 def sweep(case: Case, varies: list[Vary], out: str | Path | None = None, overwrite: bool = False,
-          plots: bool = False, progress=None, jobs: int = 1) -> list[dict]:
+          plots: bool = False, progress=None, jobs: int = 1, engine=None) -> list[dict]:
     """Run ``case`` over the grid of ``varies``; return one row per run, in grid order.
 
     Parameters
@@ -176,6 +176,7 @@ def sweep(case: Case, varies: list[Vary], out: str | Path | None = None, overwri
     plots : also draw each run's own plots and report (slower)
     progress : callable(index, count, changes, row) called after every run, or None
     jobs : runs at a time (worker processes); 1 runs them one after the other in this process
+    engine : a :class:`fvsolver.studies.engine.DaskEngine` to run on a Dask cluster instead
 
     A run that fails (a solver failure, a property outside its data) is a row with status
     "failed" and the error in ``reason``; the sweep goes on. Rows carry the varied values, the
@@ -212,7 +213,16 @@ def sweep(case: Case, varies: list[Vary], out: str | Path | None = None, overwri
     def run_dir(index: int) -> Path | None:
         return folder / "runs" / f"{index:03d}" if folder is not None else None
 
-    if jobs == 1 or len(grid) == 1:
+    if engine is not None:
+        # the workers write the run folders themselves (absolute paths: a shared filesystem);
+        # a run folder that exists already is a dead worker's attempt (the sweep folder was
+        # prepared above), so the retry may write over it
+        base = (case.path, case.text, None if case.text else thaw(case.data))
+        calls = [(base, changes, None if folder is None else run_dir(i).resolve(), True, plots)
+                 for i, (changes, _) in enumerate(grid)]
+        engine.map(_execute_in_worker, calls, record,
+                   lambda i, exc: ({"status": "failed"}, f"lost on the cluster: {type(exc).__name__}: {exc}", 0.0))
+    elif jobs == 1 or len(grid) == 1:
         for index, (_, variant) in enumerate(grid):
             record(index, _execute(variant, run_dir(index), overwrite, plots))
     else:

@@ -4,6 +4,7 @@ from __future__ import annotations
 import math
 from pathlib import Path
 
+from fvsolver.case.loader import excerpt
 from fvsolver.case.schema import SHAPES
 
 GLASS, CAP, AXIS = "glass", "cap", "axis"
@@ -89,22 +90,34 @@ def check_consistency(data: dict, v) -> None:
     if len(v.problems) > start:
         return
     if shape == "mesh_file":
+        from fvsolver.case.limits import vtu_counts
         from fvsolver.errors import MeshError
         from fvsolver.vtk_io import read_mesh
 
+        if "\x00" in geo["file"]:
+            v.error("geometry.file", f"got {excerpt(geo['file'])}, which holds a NUL character; expected a "
+                    "file name")
+            return
         path = resolve_mesh_file(geo["file"], Path(data.get("_folder", ".")))
         if path is None:
-            v.error("geometry.file", f"got {geo['file']!r}, expected a path inside the case's folder or meshes/ "
+            v.error("geometry.file", f"got {excerpt(geo['file'])}, expected a path inside the case's folder or meshes/ "
                     "(or an absolute path); relative paths may not climb out with '..'")
             return
         if not path.is_file():
-            v.error("geometry.file", f"got {geo['file']!r}, expected a VTU file in the case's folder or meshes/ "
+            v.error("geometry.file", f"got {excerpt(geo['file'])}, expected a VTU file in the case's folder or meshes/ "
                     f"(looked for {path}); write one with `fvsolver mesh`")
+            return
+        points, cells = vtu_counts(path)
+        limit = data["numerics"]["max_cells"]
+        if cells > limit or points > 4 * limit:
+            v.error("geometry.file", f"the mesh {excerpt(str(path))} declares {cells:,} cells and {points:,} points, "
+                    f"more than numerics.max_cells = {limit:,} allows; use a coarser mesh or raise "
+                    "numerics.max_cells")
             return
         try:
             mesh = read_mesh(path)
         except MeshError as exc:
-            v.error("geometry.file", f"the mesh {str(path)!r} is not usable: {exc}")
+            v.error("geometry.file", f"the mesh {excerpt(str(path))} is not usable: {exc}")
             return
         geo["file"] = str(path)
         patches, materials = mesh.patch_names, mesh.material_names
@@ -165,7 +178,15 @@ def check_consistency(data: dict, v) -> None:
                 f"<= initial_step <= max_step ({num['max_step']!r})")
     bad = [t for t in data["output"]["field_times"] if not 0.0 <= t <= end]
     if bad:
-        v.error("output.field_times", f"got {bad}, expected times in [0, time.end = {end!r}] s")
+        v.error("output.field_times", f"got {excerpt(bad)}, expected times in [0, time.end = {end!r}] s")
+    if len(v.problems) == start:  # the size of the run, before anything is allocated
+        from fvsolver.case.limits import limit_problems
+
+        for key, message in limit_problems(data):
+            v.error(key, message)
+
+
+DEFAULT_CONDENSING_PATCHES = ("inner_wall", "bore")
 
 
 def device_patches(data: dict, patches) -> tuple:
@@ -234,10 +255,17 @@ def _check_device(data: dict, v, patches, start: int) -> bool:
     for i, w in enumerate(water["rewettings"]):
         if not 0.0 < w["time"] < end:
             v.error(f"cap_water.rewettings[{i}].time", f"got {w['time']!r}, expected a time in (0, {end!r}) s")
-    for p in data["fluid"]["condensing_patches"]:
-        if p not in patches:
-            v.error("fluid.condensing_patches", f"got {p!r}, expected patches of the vapour space "
-                    f"(one of {', '.join(patches)})")
+    fluid_table = data["fluid"]
+    if fluid_table["condensing_patches"] == list(DEFAULT_CONDENSING_PATCHES):
+        # the default names the device head's walls; a two-layer shell has no bore
+        fluid_table["condensing_patches"] = [p for p in DEFAULT_CONDENSING_PATCHES if p in patches]
+    dry = OUTER_PATCHES + ("axis", "neck_end") + (BODY_PATCHES if whole else ())
+    inner = [p for p in patches if p not in dry]
+    for p in fluid_table["condensing_patches"]:
+        if p not in patches or p in dry:
+            what = "an outer, axis or body patch, where no head vapour is" if p in patches else "no such patch"
+            v.error("fluid.condensing_patches", f"got {p!r} ({what}), expected patches of the vapour space "
+                    f"(one of {', '.join(inner)})")
     outer = ", ".join(p for p in OUTER_PATCHES if p in patches)
     for i, hs in enumerate(data["heat_sources"]):
         if hs["patch"] not in OUTER_PATCHES or hs["patch"] not in patches:

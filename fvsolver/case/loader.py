@@ -24,11 +24,32 @@ _ASSIGN = re.compile(r"^\s*([A-Za-z0-9_\-\.\"' ]+?)\s*=\s*(.*)$")
 _INLINE_KEY = re.compile(r"([A-Za-z0-9_\-]+)\s*=")
 
 
+MAX_CASE_BYTES = 1_000_000  # a case file is a page of keys: anything larger is not one
+MAX_PROBLEM_CHARS = 600      # one reported problem, however long the value it quotes
+
+
+def excerpt(value: Any, limit: int = 80) -> str:
+    """``repr(value)``, cut to ``limit`` characters with a note of how long it was."""
+    try:
+        text = repr(value)
+    except RecursionError:
+        return f"<a value nested too deeply to show ({type(value).__name__})>"
+    if len(text) <= limit:
+        return text
+    return f"{text[: limit - 20]}... ({len(text):,} characters)"
+
+
+def _cut(problem: str) -> str:
+    if len(problem) <= MAX_PROBLEM_CHARS:
+        return problem
+    return f"{problem[: MAX_PROBLEM_CHARS - 40]}... (message cut, {len(problem):,} characters)"
+
+
 class CaseErrors(CaseError):
     """All the problems found in one case file."""
 
     def __init__(self, problems: list[str]):
-        self.problems = list(problems)
+        self.problems = [_cut(p) for p in problems]
         super().__init__("\n".join(self.problems))
 
 
@@ -113,37 +134,37 @@ class Validator:
         kind = key.kind
         if kind == "number":
             if not _is_number(value):
-                self.error(path, f"got {value!r}, expected {_describe(key)}")
+                self.error(path, f"got {excerpt(value)}, expected {_describe(key)}")
                 return value
             low, high = key.minimum, key.maximum
             if low is not None and (value <= low if key.exclusive_minimum else value < low) or \
                     high is not None and value > high:
-                self.error(path, f"got {value!r}, expected {_describe(key)}")
+                self.error(path, f"got {excerpt(value)}, expected {_describe(key)}")
             return float(value)
         if kind == "integer":
             if not isinstance(value, int) or isinstance(value, bool):
-                self.error(path, f"got {value!r}, expected {_describe(key)}")
+                self.error(path, f"got {excerpt(value)}, expected {_describe(key)}")
             elif key.minimum is not None and value < key.minimum or key.maximum is not None and value > key.maximum:
                 rng = f"{key.minimum:g}" if key.minimum == key.maximum else f"in [{key.minimum}, {key.maximum}]"
-                self.error(path, f"got {value!r}, expected {rng if key.maximum is not None else _describe(key)}")
+                self.error(path, f"got {excerpt(value)}, expected {rng if key.maximum is not None else _describe(key)}")
             return value
         if kind == "string":
             if not isinstance(value, str):
-                self.error(path, f"got {value!r}, expected {_describe(key)}")
+                self.error(path, f"got {excerpt(value)}, expected {_describe(key)}")
             elif key.choices and value not in key.choices:
                 close = difflib.get_close_matches(value, key.choices, n=1)
                 hint = f"; did you mean {close[0]!r}?" if close else ""
-                self.error(path, f"got {value!r}, expected {_describe(key)}{hint}")
+                self.error(path, f"got {excerpt(value)}, expected {_describe(key)}{hint}")
             return value
         if kind == "boolean":
             if not isinstance(value, bool):
-                self.error(path, f"got {value!r}, expected true or false")
+                self.error(path, f"got {excerpt(value)}, expected true or false")
             return value
         if kind in ("numbers", "strings"):
             ok = isinstance(value, list) and all(
                 _is_number(v) if kind == "numbers" else isinstance(v, str) for v in value)
             if not ok:
-                self.error(path, f"got {value!r}, expected {_describe(key)}")
+                self.error(path, f"got {excerpt(value)}, expected {_describe(key)}")
             return [float(v) for v in value] if ok and kind == "numbers" else value
         if kind == "property":
             return self._property(value, path)
@@ -151,12 +172,12 @@ class Validator:
             return self._table(key, value, path)
         if kind == "map":
             if not isinstance(value, dict):
-                self.error(path, f"got {value!r}, expected {_describe(key)}")
+                self.error(path, f"got {excerpt(value)}, expected {_describe(key)}")
                 return value
             return {name: self.check(key.item, v, f"{path}.{name}") for name, v in value.items()}
         if kind == "tables":
             if not isinstance(value, list) or not all(isinstance(v, dict) for v in value):
-                self.error(path, f"got {value!r}, expected an array of tables ([[{path}]])")
+                self.error(path, f"got {excerpt(value)}, expected an array of tables ([[{path}]])")
                 return value
             return [self.check(key.item, v, f"{path}[{i}]") for i, v in enumerate(value)]
         raise AssertionError(kind)  # pragma: no cover
@@ -164,28 +185,28 @@ class Validator:
     def _property(self, value: Any, path: str) -> Any:
         if _is_number(value):
             if value <= 0:
-                self.error(path, f"got {value!r}, expected a positive number")
+                self.error(path, f"got {excerpt(value)}, expected a positive number")
             return float(value)
         if isinstance(value, dict) and set(value) == {"temperatures", "values"}:
             t, v = value["temperatures"], value["values"]
             good = (isinstance(t, list) and isinstance(v, list) and len(t) == len(v) >= 2
                     and all(map(_is_number, t + v)) and all(b > a for a, b in zip(t, t[1:])) and min(v) > 0)
             if not good:
-                self.error(path, f"got {value!r}, expected >= 2 increasing temperatures (K) with one positive "
+                self.error(path, f"got {excerpt(value)}, expected >= 2 increasing temperatures (K) with one positive "
                                  "value each")
             return value
         if isinstance(value, dict) and set(value) == {"polynomial"}:
             c = value["polynomial"]
             if not (isinstance(c, list) and c and all(map(_is_number, c))):
-                self.error(path, f"got {value!r}, expected polynomial = [a0, a1, ...] (T in K)")
+                self.error(path, f"got {excerpt(value)}, expected polynomial = [a0, a1, ...] (T in K)")
             return value
-        self.error(path, f"got {value!r}, expected a positive number, {{temperatures = [...], values = [...]}} "
+        self.error(path, f"got {excerpt(value)}, expected a positive number, {{temperatures = [...], values = [...]}} "
                          "or {polynomial = [...]}")
         return value
 
     def _table(self, key: Key, value: Any, path: str) -> Any:
         if not isinstance(value, dict):
-            self.error(path, f"got {value!r}, expected a table")
+            self.error(path, f"got {excerpt(value)}, expected a table")
             return value
         names = {c.name: c for c in key.children}
         out = {}
@@ -194,7 +215,7 @@ class Validator:
             if name not in names:
                 close = difflib.get_close_matches(name, names, n=1, cutoff=0.6)
                 hint = f"; did you mean {close[0]!r}?" if close else ""
-                self.error(sub, f"unknown key (got {name!r}, expected one of {', '.join(names)}){hint}")
+                self.error(sub, f"unknown key (got {excerpt(name)}, expected one of {', '.join(names)}){hint}")
                 continue
             out[name] = self.check(names[name], v, sub)
         for name, child in names.items():
@@ -275,6 +296,39 @@ def validate_data(raw: dict, filename: str = "<case>", text: str = "",
     return data, v.problems
 
 
+def read_text(path: Path) -> str:
+    """The text of a case file: UTF-8 (TOML 1.0 requires it), with no byte-order mark.
+
+    Raises
+    ------
+    CaseErrors
+        Naming the line and byte of the first byte that is not UTF-8, or the mark.
+    """
+    try:
+        with open(path, "rb") as fh:
+            data = fh.read(MAX_CASE_BYTES + 1)
+    except (OSError, ValueError) as exc:  # ValueError: a NUL in the path
+        why = getattr(exc, "strerror", None) or str(exc)
+        raise CaseErrors([f"{excerpt(str(path))[1:-1]}:1: case file: cannot be read ({why}); check the path"]) \
+            from exc
+    if len(data) > MAX_CASE_BYTES:
+        raise CaseErrors([f"{path}:1: case file: larger than {MAX_CASE_BYTES:,} bytes (expected a page of "
+                          "TOML keys); meshes belong in a mesh file (geometry.file), not in the case"])
+    if data.startswith(b"\xef\xbb\xbf"):
+        raise CaseErrors([f"{path}:1: case file: starts with a UTF-8 byte-order mark (BOM), which TOML does not "
+                          "allow; save the file as UTF-8 without BOM"])
+    if data.startswith((b"\xff\xfe", b"\xfe\xff")):
+        raise CaseErrors([f"{path}:1: case file: is UTF-16 (it starts with a byte-order mark); save it as UTF-8"])
+    try:
+        return data.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        line = data.count(b"\n", 0, exc.start) + 1
+        column = exc.start - (data.rfind(b"\n", 0, exc.start) + 1) + 1
+        raise CaseErrors([f"{path}:{line}: case file: byte 0x{data[exc.start]:02x} at column {column} is not "
+                          "UTF-8 (a Latin-1 or Windows-1252 character such as a degree sign?); save the file "
+                          "as UTF-8 or write the character in ASCII"]) from None
+
+
 def load_case(path: str | Path) -> Case:
     """Read, validate and freeze a TOML case file.
 
@@ -286,17 +340,21 @@ def load_case(path: str | Path) -> Case:
     from fvsolver.case.writer import dumps
 
     path = Path(path)
-    try:
-        text = path.read_text(encoding="utf-8")
-    except OSError as exc:
-        raise CaseErrors([f"{path}:1: case file: cannot be read ({exc.strerror}); check the path"]) from exc
+    text = read_text(path)
     try:
         raw = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         m = re.search(r"line (\d+)", str(exc))
         line = m.group(1) if m else (str(max(1, len(text.splitlines()))) if "end of document" in str(exc) else "1")
         raise CaseErrors([f"{path}:{line}: TOML syntax: {exc}; fix the syntax"]) from exc
-    data, problems = validate_data(raw, str(path), text, path.parent)
+    except RecursionError:
+        raise CaseErrors([f"{path}:1: TOML syntax: arrays or inline tables nested too deeply to read (expected "
+                          "the flat tables of a case file); remove the nesting"]) from None
+    try:
+        data, problems = validate_data(raw, str(path), text, path.parent)
+    except RecursionError:
+        raise CaseErrors([f"{path}:1: case file: a value is nested too deeply to check (expected numbers, "
+                          "strings, flat arrays and tables); remove the nesting"]) from None
     if problems:
         raise CaseErrors(problems)
     resolved = dumps({k: v for k, v in data.items() if not k.startswith("_")})

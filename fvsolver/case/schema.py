@@ -126,12 +126,14 @@ GEOMETRY = table(
         choices=("axisymmetric", "planar")),
     Key("file", "string", "A VTU mesh written by `fvsolver mesh` (resolved in the case's folder or meshes/)."),
     Key("material", "string", "Material tag of a one-material shape.", default="glass"),
+    default=REQUIRED,
 )
 
 MESH = table(
     "mesh", "Cell counts of the parametric shapes (ignored for a mesh file).",
     Key("glass_cells", "integer", "Cells through the glass wall.", default=4, minimum=2),
-    Key("cap_cells", "integer", "Cells through the porous cap.", default=4, minimum=2),
+    Key("cap_cells", "integer", "Cells through the porous cap (8 keep the demo's mesh error near 0.1 %).", default=8,
+        minimum=2),
     Key("polar_cells", "integer", "Cells along the bulb's meridian.", default=48, minimum=4),
     Key("neck_cells", "integer", "Cells along the neck tube (whole device: the tube between the bulbs).",
         default=16, minimum=2),
@@ -148,10 +150,19 @@ NUMERICS = table(
     "numerics", "Time stepping.",
     Key("scheme", "string", "Time integration scheme.", default="bdf2", choices=("bdf2", "backward_euler")),
     Key("adaptive", "boolean", "Choose steps from the local error estimate.", default=True),
-    num("tolerance", "Local temperature error allowed per step.", "K", 0.01, positive=True),
+    num("tolerance", "Local temperature error allowed per step (1e-3 keeps the demo's time-step error near "
+        "0.15 %).", "K", 0.001, positive=True),
     num("initial_step", "First (or, if not adaptive, every) time step.", "s", 0.1, positive=True),
     num("min_step", "Smallest step before the run fails.", "s", 1e-6, positive=True),
     num("max_step", "Largest step.", "s", 60.0, positive=True),
+    Key("max_cells", "integer", "Refuse a mesh estimated larger than this many cells (raise it for a bigger "
+        "machine).", default=200_000, minimum=1),
+    num("max_memory_mb", "Refuse a run whose memory is estimated above this (megabytes).", "MB", 4000.0,
+        positive=True),
+    Key("max_output_files", "integer", "Refuse a run that would write more field files than this.",
+        default=2000, minimum=1),
+    Key("max_steps", "integer", "Refuse a run that needs more steps than this, and stop one that takes them.",
+        default=2_000_000, minimum=1),
 )
 
 OUTPUT = table(
@@ -322,7 +333,8 @@ CASE = table(
     POOL, CYCLE,
     Key("hot_air", "tables", "Warm air streams over outer patches (whole device).", default=[], item=HOT_AIR),
     table("safety", SAFETY.doc, *SAFETY.children, default={}),
-    table("time", "Simulated time.", num("end", "End of the simulation.", "s", REQUIRED, positive=True)),
+    table("time", "Simulated time.", num("end", "End of the simulation.", "s", REQUIRED, positive=True),
+          default=REQUIRED),
     table("numerics", NUMERICS.doc, *NUMERICS.children, default={}),
     table("output", OUTPUT.doc, *OUTPUT.children, default={}),
 )

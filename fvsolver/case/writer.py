@@ -1,9 +1,33 @@
 """Write resolved case data back as TOML (the subset case files use)."""
 from __future__ import annotations
 
-import json
 import math
+import re
 from typing import Any
+
+_BARE_KEY = re.compile(r"[A-Za-z0-9_\-]+")
+_ESCAPES = {"\b": "\\b", "\t": "\\t", "\n": "\\n", "\f": "\\f", "\r": "\\r", '"': '\\"', "\\": "\\\\"}
+
+
+def _string(text: str) -> str:
+    """A TOML basic string: any character as itself (UTF-8), control characters escaped.
+
+    Characters outside the basic plane (an emoji) are written as themselves, never as the
+    surrogate pairs a JSON writer would give, which TOML does not accept.
+    """
+    out = []
+    for ch in text:
+        if ch in _ESCAPES:
+            out.append(_ESCAPES[ch])
+        elif ord(ch) < 0x20 or ord(ch) == 0x7F:  # TOML 1.0: control characters must be escaped
+            out.append(f"\\u{ord(ch):04x}")
+        else:
+            out.append(ch)
+    return '"' + "".join(out) + '"'
+
+
+def _key(name: str) -> str:
+    return name if _BARE_KEY.fullmatch(name) else _string(name)
 
 
 def _value(v: Any) -> str:
@@ -16,7 +40,7 @@ def _value(v: Any) -> str:
             raise ValueError(f"cannot write non-finite number {v!r} to TOML")
         return repr(v)
     if isinstance(v, str):
-        return json.dumps(v)
+        return _string(v)
     if isinstance(v, (list, tuple)):
         return "[" + ", ".join(_value(x) for x in v) + "]"
     raise TypeError(f"cannot write {type(v).__name__} to TOML")
@@ -35,9 +59,9 @@ def dumps(data: Any, prefix: str = "") -> str:
     out = []
     for k, v in data.items():
         if not _is_map(v) and not _is_map_list(v):
-            out.append(f"{k} = {_value(v)}")
+            out.append(f"{_key(k)} = {_value(v)}")
     for k, v in data.items():
-        name = f"{prefix}{k}"
+        name = f"{prefix}{_key(k)}"
         if _is_map(v):
             out.append(f"\n[{name}]")
             body = dumps(v, name + ".")

@@ -8,7 +8,7 @@ import numpy as np
 from scipy.optimize import brentq
 
 from fvsolver.materials import REFERENCE_TEMPERATURE
-from fvsolver.properties import moist_air
+from fvsolver.properties import convection, moist_air
 
 
 class DeviceMonitor:
@@ -100,15 +100,21 @@ class DeviceMonitor:
         fluid = spec.vapour.fluid
         t_wb = room.wet_bulb_temperature
         t_b = float(y[p.i_tb])
-        limit = float(fluid.saturation_pressure(t_b) - fluid.saturation_pressure(t_wb))
-        depression = room.air_temperature - t_wb
+        # the bound comes from the model's own coldest wet surface (its Lewis-number analogy and
+        # radiation put it below the thermodynamic wet-bulb), so no run can exceed the stated bound
+        t_ws = wet_surface_temperature(p)
+        vap = spec.vapour
+        limit = float(fluid.saturation_pressure(t_b) + vap.non_condensable_pressure(t_b)
+                      - fluid.saturation_pressure(t_ws) - vap.non_condensable_pressure(t_ws))
+        depression = room.air_temperature - t_ws
         reasons = []
         if limit < target:
             reasons.append(
                 f"the room is too humid: at {room.air_temperature - 273.15:.1f} C and "
-                f"{100 * room.relative_humidity:.0f} % relative humidity the wet-bulb depression is only "
-                f"{depression:.2f} K, which allows at most about {max(limit, 0.0):.0f} Pa against the target "
-                f"{target:.0f} Pa")
+                f"{100 * room.relative_humidity:.0f} % relative humidity a fully wet cap with no heat from "
+                f"inside settles at {t_ws - 273.15:.2f} C ({depression:.2f} K below the air; wet-bulb "
+                f"{t_wb - 273.15:.2f} C), which allows at most about {max(limit, 0.0):.0f} Pa against the "
+                f"target {target:.0f} Pa")
         if self.dried_out_time is not None:
             reasons.append(f"the cap dried out at t = {self.dried_out_time:.0f} s")
         extra = sum(room.extra_flux.values())
@@ -163,7 +169,42 @@ class DeviceMonitor:
         return row
 
 
+def wet_surface_temperature(problem) -> float:
+    """The coldest temperature the model's cap can reach, K: a fully wet cap that receives no heat
+    from inside, where convection and radiation from the room balance evaporation,
+
+    .. math:: h (T_a - T_s) + \\varepsilon\\sigma (T_{sur}^4 - T_s^4) = L_w(T_s)\\,h_m (\\rho_{v,sat}(T_s) - \\rho_{v,\\infty})
+
+    with the model's own h(T_s) and h_m (Chilton-Colburn) for the head's diameter.
+    """
+    room = problem.spec.room
+    cap = problem.cap_term
+
+    def coefficients(t_s: float) -> dict:
+        t_s = min(max(t_s, 274.0), 320.0)  # the correlations' range, as in the run
+        if room.convection == "given":
+            h = room.heat_transfer_coefficient
+        else:
+            h = float(convection.sphere_convection(problem.outer_diameter, t_s, room.air_temperature,
+                                                   room.pressure, room.air_speed, room.convection).h)
+        h_m = float(convection.mass_transfer_coefficient(h, 0.5 * (t_s + room.air_temperature), room.pressure,
+                                                         room.lewis_number))
+        return {"cap": {"h": h, "h_m": h_m, "wet_fraction": 1.0}}
+
+    def balance(t_s: float) -> float:
+        q, _ = cap.heat_flux(np.array([t_s]), 0.0, None, None, coefficients(t_s))
+        return float(q[0])
+
+    hot = max(room.air_temperature, room.surroundings_temperature)
+    if balance(hot) >= 0.0:  # a saturated room: nothing to cool by
+        return hot
+    if balance(273.16) <= 0.0:  # below the water data (the loader refuses such rooms)
+        return 273.16
+    return float(brentq(balance, 273.16, hot, xtol=1e-6))
+
+
 def room_summary(room) -> dict:
     return {"air_temperature_k": room.air_temperature, "relative_humidity": room.relative_humidity,
             "wet_bulb_temperature_k": room.wet_bulb_temperature,
-            "dew_point_k": float(moist_air.dew_point(room.vapour_pressure))}
+            # perfectly dry air (relative humidity 0) has no dew point
+            "dew_point_k": float(moist_air.dew_point(room.vapour_pressure)) if room.vapour_pressure > 0 else None}

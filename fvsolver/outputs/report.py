@@ -43,7 +43,7 @@ def format_duration(seconds: float | None) -> str:
     Returns
     -------
     str
-        ``"0.25 s"``, ``"42 s"``, ``"4 min 12 s"``, ``"2 h 5 min"``, ``"3 d 4 h"``;
+        ``"0.25 s"``, ``"42 s"``, ``"4 min 12 s"``, ``"2 h 5 min"``, ``"2 h"``, ``"3 d 4 h"``;
         ``"n/a"`` for None or a non-finite value.
     """
     s = _number(seconds)
@@ -56,17 +56,18 @@ def format_duration(seconds: float | None) -> str:
         if s == 0.0:
             text = "0 s"
         return sign + text
+    def two(big: int, big_unit: str, small: int, small_unit: str) -> str:
+        # a zero second part says nothing: "2 h", not "2 h 0 min"
+        return f"{sign}{big} {big_unit}" + (f" {small} {small_unit}" if small else "")
+
     total = round(s)
     if total < 3600:
-        m, sec = divmod(total, 60)
-        return f"{sign}{m} min {sec} s"
+        return two(total // 60, "min", total % 60, "s")
     total_min = round(s / 60.0)
     if total_min < 24 * 60:
-        h, m = divmod(total_min, 60)
-        return f"{sign}{h} h {m} min"
+        return two(total_min // 60, "h", total_min % 60, "min")
     total_h = round(s / 3600.0)
-    d, h = divmod(total_h, 24)
-    return f"{sign}{d} d {h} h"
+    return two(total_h // 24, "d", total_h % 24, "h")
 
 
 def format_pressure(pa: float | None) -> str:
@@ -139,22 +140,33 @@ def _target_reached(summary: Mapping) -> bool | None:
     return None
 
 
+def _format_balance(value: float) -> str:
+    """A relative balance error in plain words: its size, and whether it is round-off."""
+    if value == 0.0:
+        return "exactly"
+    if value < 1e-8:  # never "6.4e-09 %": a percentage that small says round-off less plainly
+        return f"at round-off ({value:.1e})"
+    if value < 1e-6:
+        return "to within 0.0001 %"
+    return f"to within {100 * value:.2g} %"
+
+
 def _balance_sentence(name: str, value) -> str | None:
     """One sentence on a balance error (a float or a dict of per-quantity errors)."""
     if isinstance(value, Mapping):
         parts = [(str(k), _number(v)) for k, v in value.items()]
-        parts = [(k, v) for k, v in parts if v is not None]
+        parts = [(k, abs(v)) for k, v in parts if v is not None]
         if not parts:
             return None
-        worst = max(abs(v) for _, v in parts)
-        text = ", ".join(f"{k.replace('_', ' ')} {_format_fraction(v)}" for k, v in parts)
-        sentence = f"The {name} balances closed to within: {text} (relative errors)."
+        worst = max(v for _, v in parts)
+        text = ", ".join(f"{k.replace('_', ' ')} {_format_balance(v)}" for k, v in parts)
+        sentence = f"The {name} balances closed: {text} (relative to the amounts exchanged)."
     else:
         worst = _number(value)
         if worst is None:
             return None
         worst = abs(worst)
-        sentence = f"The {name} balance closed to within {_format_fraction(worst)} (relative error)."
+        sentence = f"The {name} balance closed {_format_balance(worst)} (relative error)."
     if worst > BALANCE_ALERT:
         sentence += (
             f" That is more than {_format_fraction(BALANCE_ALERT)}: treat the results with "
@@ -204,13 +216,19 @@ def result_paragraph(summary: Mapping) -> str:
             sentences.append(f"Why it stopped short: {str(reason).rstrip('.')}.")
         else:
             sentences.append("The run recorded no reason for stopping short.")
-    else:
-        text = "The summary does not say whether the target pressure difference was reached"
-        text += f"; the largest difference was {format_pressure(peak)}." if peak is not None else "."
+    elif target is not None or peak is not None:
+        # a run that stopped early (interrupted, failed): the question is still open
+        end = _number(summary.get("end_time_s"))
+        at = f" at {format_duration(end)}" if end is not None else ""
+        text = f"The run stopped{at} before the pressure difference reached {target_text}"
+        text += f"; the largest difference until then was {format_pressure(peak)}." if peak is not None else "."
         sentences.append(text)
-        reason = summary.get("stall_reason")
-        if reason:
-            sentences.append(f"Recorded stall reason: {str(reason).rstrip('.')}.")
+    # a case without a target (conduction only) has nothing to say about one
+    skipped = summary.get("field_times_not_reached_s") or []
+    if skipped:
+        times = ", ".join(format_duration(t) for t in skipped)
+        sentences.append(f"The run stopped before the field output times {times}, which were not written"
+                         + ("; the field at the target crossing was written instead." if reached else "."))
     cells, steps = _format_count(summary.get("n_cells")), _format_count(summary.get("n_steps"))
     if cells and steps:
         sentences.append(f"The model had {cells} cells and took {steps} time steps.")
@@ -293,11 +311,13 @@ def _safety_figures(summary: Mapping) -> list[str]:
     return lines
 
 
-CAUTIONS = """\
+GENERAL_CAUTION = """\
 This report is the output of a numerical model, not a safety assessment. Before anything is
 built, filled or run, follow local codes and regulations and your organisation's procedures,
 and have the design, the filling and the test plan reviewed under licensed professional
-practice (a qualified chemist, pressure or glass specialist, or safety officer). The notes
+practice (a qualified chemist, pressure or glass specialist, or safety officer)."""
+
+CAUTIONS = GENERAL_CAUTION + """ The notes
 below are reminders, not a complete list.
 
 **Toxic, volatile working fluid.** Working fluids such as dichloromethane evaporate quickly
@@ -336,12 +356,36 @@ into toxic and corrosive gases (hydrogen chloride, phosgene).
 """
 
 
+def uncertainty_paragraph(summary: Mapping) -> str | None:
+    """The estimated numerical uncertainty of the time to target, from ``numerical_uncertainty``."""
+    u = summary.get("numerical_uncertainty")
+    if not isinstance(u, Mapping):
+        return None
+    if u.get("reason"):
+        return f"Not estimated: {u['reason']}."
+    t = _number(summary.get("time_to_target_s"))
+    parts = []
+    for key, what in (("time_steps", "time steps"), ("mesh", "mesh")):
+        part = u.get(key)
+        if isinstance(part, Mapping) and _number(part.get("estimate_s")) is not None:
+            parts.append(f"{what} ±{format_duration(part['estimate_s'])} ({100 * part['relative']:.2g} %; "
+                         f"{part['how']})")
+    if not parts or t is None:
+        return None
+    total = u.get("total_relative")
+    return (f"Estimated numerical uncertainty of the time to target ({format_duration(t)}): "
+            + "; ".join(parts) + (f". Together about ±{100 * total:.2g} %." if total is not None else ".")
+            + " These bound the discretisation only; the model's inputs (property data, transfer "
+              "correlations, the accommodation coefficient) are usually far less certain.")
+
+
 def write_report(
     folder: str | os.PathLike,
     summary: dict,
     case_title: str,
     inputs: dict,
     plots: list[str],
+    scenario: str = "",
 ) -> Path:
     """Write ``report.md`` into ``folder`` atomically and return its path.
 
@@ -360,6 +404,8 @@ def write_report(
         value, shown as a table in the given order.
     plots : list of str
         Image files, absolute or relative to ``folder``, embedded in the given order.
+    scenario : str
+        The scenario computed from the inputs, shown under the title (which is free text).
 
     Returns
     -------
@@ -373,10 +419,20 @@ def write_report(
     lines = [f"# {title}", "", "## Result", "", result_paragraph(summary) or "The summary is empty.", ""]
     if summary.get("outcome"):
         lines += ["## The running device", "", *cycle_section(summary), ""]
+    if scenario:
+        lines[1:1] = ["", f"*Computed for: {scenario}*"]
+    uncertainty = uncertainty_paragraph(summary)
+    if uncertainty:
+        lines += ["## Numerical uncertainty", "", uncertainty, ""]
     lines += ["## Inputs", "", *_inputs_table(inputs or {}), ""]
     lines += ["## Plots", "", *_plot_links(folder, plots or []), ""]
-    lines += ["## Safety figures", "", *_safety_figures(summary), ""]
-    lines += ["## Cautions", "", CAUTIONS]
+    device = (summary.get("target_pressure_drop_pa") is not None or "room" in summary
+              or bool(summary.get("warnings")))
+    if device:
+        lines += ["## Safety figures", "", *_safety_figures(summary), ""]
+        lines += ["## Cautions", "", CAUTIONS]
+    else:  # conduction only: no working fluid, no sealed glass
+        lines += ["## Caution", "", GENERAL_CAUTION, ""]
     path = folder / REPORT_NAME
     atomic_write_text(path, "\n".join(lines))
     return path

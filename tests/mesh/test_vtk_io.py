@@ -42,16 +42,33 @@ def test_device_head_round_trip(tmp_path, head):
         ["axis", "inner_wall", "bore", "glass_outer", "cap_outer", "cap_edge", "neck_outer",
          "neck_end"]
     )
-    # the file itself, as meshio sees it
-    raw = meshio.read(path)
+    # the file itself, as meshio sees it (the field data, VTK string arrays, read by vtk_io)
+    raw, field_data = vtk_io._read_vtu(str(path))
     assert raw.points.shape == (len(head.nodes), 3) and np.all(raw.points[:, 2] == 0.0)
     assert [c.type for c in raw.cells] == ["quad", "line"]
     assert np.array_equal(raw.cell_data["material"][0], head.cell_material)
     assert np.all(raw.cell_data["material"][1] == -1)
     assert np.array_equal(raw.cell_data["patch"][1], head.boundary_patch)
-    assert bytes(raw.field_data["material_names"]) == b"glass\0cap\0"
-    assert bytes(raw.field_data["coordinate_system"]) == b"axisymmetric\0"
+    assert field_data["material_names"] == ("glass", "cap")
+    assert field_data["coordinate_system"] == ("axisymmetric",)
+    xml = ET.parse(path).getroot().find("UnstructuredGrid/FieldData")
+    assert {a.get("Name"): a.get("type") for a in xml}["material_names"] == "String"
     assert not [p for p in os.listdir(tmp_path) if p != "head.vtu"]  # no temporary left
+
+
+def test_mesh_files_with_names_as_bytes_still_read(tmp_path, head):
+    """Files written before the names became VTK strings: UInt8 bytes, a zero after each name."""
+    path = tmp_path / "old.vtu"
+    vtk_io.write_mesh(head, path)
+    tree = ET.parse(path)
+    for array in tree.getroot().find("UnstructuredGrid/FieldData"):
+        if array.get("type") == "String":
+            codes = np.array(array.text.split(), dtype=np.int64).astype(np.uint8)
+            array.tag, array.attrib["type"] = "DataArray", "UInt8"
+            array.attrib["NumberOfTuples"] = str(codes.size)
+            array.text = " ".join(map(str, codes.tolist()))
+    tree.write(path, encoding="utf-8", xml_declaration=True)
+    assert_same_mesh(head, vtk_io.read_mesh(path))
 
 
 def test_planar_mesh_round_trip_and_replacement(tmp_path):
@@ -84,6 +101,7 @@ def test_write_fields_and_pvd(tmp_path, head):
             head,
             {"temperature": temperature + time, "heat_flux": head.cell_centres},
             {"evaporation": flux, "temperature": wall},
+            boundary_path=tmp_path / f"faces_{step:04d}.vtu",
         )
         names.append((time, name))
     vtk_io.write_pvd(tmp_path / "run.pvd", names)
@@ -92,24 +110,34 @@ def test_write_fields_and_pvd(tmp_path, head):
     assert root.tag == "VTKFile" and root.attrib["type"] == "Collection"
     sets = root.find("Collection").findall("DataSet")
     assert [float(d.attrib["timestep"]) for d in sets] == [0.0, 0.5, 2.0]
-    for (time, name), entry in zip(names, sets):
-        raw = meshio.read(tmp_path / entry.attrib["file"])
-        t_quad, t_line = raw.cell_data["temperature"]
-        assert np.allclose(t_quad, temperature + time) and np.allclose(t_line, wall)
-        vec_quad, vec_line = raw.cell_data["heat_flux"]
+    for step, ((time, name), entry) in enumerate(zip(names, sets)):
+        # the cell file holds the quads only: no boundary value can stretch a cell field's range
+        raw, fields = vtk_io._read_vtu(str(tmp_path / entry.attrib["file"]))
+        assert [c.type for c in raw.cells] == ["quad"]
+        (t_quad,) = raw.cell_data["temperature"]
+        assert np.allclose(t_quad, temperature + time)
+        (vec_quad,) = raw.cell_data["heat_flux"]
         assert vec_quad.shape == (head.n_cells, 3)
         assert np.allclose(vec_quad[:, :2], head.cell_centres) and np.all(vec_quad[:, 2] == 0)
-        assert np.all(vec_line == 0.0)
-        e_quad, e_line = raw.cell_data["evaporation"]
-        assert np.all(e_quad == 0.0)
-        assert np.allclose(e_line[cap], flux[cap]) and np.isnan(np.delete(e_line, cap)).all()
-        v_quad, v_line = raw.cell_data["cell_volume"]
-        assert np.allclose(v_quad, head.cell_volumes, rtol=1e-15) and np.all(v_line == 0)
-        assert np.allclose(raw.cell_data["face_area"][1], head.boundary_areas)
+        assert "evaporation" not in raw.cell_data and "patch" not in raw.cell_data
+        (v_quad,) = raw.cell_data["cell_volume"]
+        assert np.allclose(v_quad, head.cell_volumes, rtol=1e-15)
         assert np.array_equal(raw.cell_data["material"][0], head.cell_material)
-        # a field file is still a mesh file
-        assert_same_mesh(head, vtk_io.read_mesh(tmp_path / name))
-    assert sorted(os.listdir(tmp_path)) == sorted([n for _, n in names] + ["run.pvd"])
+        assert fields["material_names"] == head.material_names
+        # the boundary file holds the faces only
+        raw, fields = vtk_io._read_vtu(str(tmp_path / f"faces_{step:04d}.vtu"))
+        assert [c.type for c in raw.cells] == ["line"]
+        assert np.array_equal(raw.cells[0].data, head.boundary_nodes)
+        (t_line,) = raw.cell_data["temperature"]
+        assert np.allclose(t_line, wall)
+        (e_line,) = raw.cell_data["evaporation"]
+        assert np.allclose(e_line[cap], flux[cap]) and np.isnan(np.delete(e_line, cap)).all()
+        assert np.allclose(raw.cell_data["face_area"][0], head.boundary_areas)
+        assert np.array_equal(raw.cell_data["patch"][0], head.boundary_patch)
+        assert "material" not in raw.cell_data and "heat_flux" not in raw.cell_data
+        assert fields["patch_names"] == head.patch_names
+    assert sorted(os.listdir(tmp_path)) == sorted([n for _, n in names] + ["run.pvd"]
+                                                  + [f"faces_{k:04d}.vtu" for k in range(3)])
 
 
 @pytest.mark.parametrize(
@@ -119,15 +147,16 @@ def test_write_fields_and_pvd(tmp_path, head):
         (lambda m: ({"material": np.zeros(m.n_cells)}, None), "'material' is not allowed"),
         (lambda m: ({"q": np.zeros((m.n_cells, 4))}, None), r"cell_fields\['q'\]"),
         (lambda m: ({}, {"h": np.zeros((m.n_boundary, 2))}), r"boundary_fields\['h'\]"),
-        (lambda m: ({"T": np.zeros((m.n_cells, 2))}, {"T": np.zeros(m.n_boundary)}),
-         r"boundary_fields\['T'\]"),
+        (lambda m: ({"T": np.zeros(m.n_cells)}, {"T": np.zeros(m.n_boundary)}),
+         "boundary_fields: given without boundary_path"),
         (lambda m: ([1.0], None), "cell_fields: got list"),
     ],
 )
 def test_write_fields_refuses_bad_arrays(tmp_path, head, arrays, item):
     cell_fields, boundary_fields = arrays(head)
     with pytest.raises(MeshError, match=item):
-        vtk_io.write_fields(tmp_path / "bad.vtu", head, cell_fields, boundary_fields)
+        vtk_io.write_fields(tmp_path / "bad.vtu", head, cell_fields, boundary_fields,
+                            boundary_path=None if "given without" in item else tmp_path / "faces.vtu")
     assert not os.listdir(tmp_path)
 
 

@@ -18,8 +18,8 @@ def _section(text: str, heading: str) -> str:
 @pytest.mark.parametrize(
     "seconds, text",
     [
-        (0.0, "0 s"), (0.25, "0.25 s"), (42.4, "42 s"), (59.7, "1 min 0 s"), (252.0, "4 min 12 s"),
-        (3599.6, "1 h 0 min"), (7500.0, "2 h 5 min"), (3 * 86400 + 4 * 3600, "3 d 4 h"),
+        (0.0, "0 s"), (0.25, "0.25 s"), (42.4, "42 s"), (59.7, "1 min"), (252.0, "4 min 12 s"),
+        (3599.6, "1 h"), (7200.0, "2 h"), (240.0, "4 min"), (7500.0, "2 h 5 min"), (3 * 86400 + 4 * 3600, "3 d 4 h"),
         (None, "n/a"), (float("nan"), "n/a"),
     ],
 )
@@ -54,7 +54,7 @@ def test_report_when_the_target_is_reached(tmp_path):
     result = _section(text, "Result")
     assert "reached the target of 1.2 kPa after 4 min 12 s" in result
     assert "1.48 kPa" in result and "1,536 cells" in result and "412 time steps" in result
-    assert "0.002 %" in result and "working fluid 0.03 %" in result
+    assert "to within 0.002 %" in result and "working fluid to within 0.03 %" in result
     assert "| room air temperature (K) | 296.15 |" in _section(text, "Inputs")
     links = _section(text, "Plots")
     assert "![history](history.png)" in links
@@ -90,11 +90,51 @@ def test_report_when_the_run_stalls(tmp_path):
 def test_report_with_an_empty_summary(tmp_path):
     text = write_report(tmp_path, {}, "", {}, []).read_text(encoding="utf-8")
     assert text.startswith("# Untitled case")
-    assert "does not say whether the target" in _section(text, "Result")
+    assert "The summary is empty." in _section(text, "Result")
+    assert "target" not in _section(text, "Result")  # nothing is said about a target it does not have
+    assert "No plots" in _section(text, "Plots")
+    assert "## Caution" in text and "not a safety assessment" in text
+
+
+def test_device_report_with_missing_safety_figures(tmp_path):
+    summary = {"status": "complete", "target_reached": False, "target_pressure_drop_pa": 600.0}
+    text = write_report(tmp_path, summary, "", {}, []).read_text(encoding="utf-8")
     safety = _section(text, "Safety figures")
     assert "internal pressure: not recorded" in safety and "glass temperature: not recorded" in safety
-    assert "No plots" in _section(text, "Plots")
-    assert "## Cautions" in text
+    assert "## Cautions" in text and "dichloromethane" in text
+
+
+def test_conduction_only_report_has_no_target_and_no_solvent_cautions(tmp_path):
+    summary = {"status": "complete", "target_reached": None, "time_to_target_s": None,
+               "target_pressure_drop_pa": None, "max_pressure_drop_pa": None, "stall_reason": None,
+               "energy_balance_relative_error": 6.5e-11, "mass_balance_relative_error": {}, "n_cells": 200,
+               "n_steps": 40, "warnings": []}
+    text = write_report(tmp_path, summary, "Glass bulb cooling", {}, []).read_text(encoding="utf-8")
+    result = _section(text, "Result")
+    assert "target" not in result and "does not say" not in result
+    assert "closed at round-off (6.5e-11)" in result and "e-09 %" not in text and "e-11 %" not in text
+    assert "dichloromethane" not in text and "Safety figures" not in text
+    assert "not a safety assessment" in text
+
+
+def test_interrupted_run_says_the_question_is_open(tmp_path):
+    summary = {"status": "interrupted", "target_reached": None, "time_to_target_s": None, "end_time_s": 95.0,
+               "target_pressure_drop_pa": 647.0, "max_pressure_drop_pa": 310.0, "stall_reason": None}
+    result = _section(write_report(tmp_path, summary, "Head", {}, []).read_text(encoding="utf-8"), "Result")
+    assert "stopped at 1 min 35 s before the pressure difference reached the target of 647 Pa" in result
+    assert "310 Pa" in result and "None" not in result
+
+
+def test_report_states_the_numerical_uncertainty(tmp_path):
+    summary = {"status": "complete", "target_reached": True, "time_to_target_s": 22.1,
+               "target_pressure_drop_pa": 647.0,
+               "numerical_uncertainty": {"time_steps": {"estimate_s": 0.05, "relative": 0.0023, "how": "x"},
+                                         "mesh": {"estimate_s": 0.03, "relative": 0.0014, "how": "y"},
+                                         "total_relative": 0.0027}}
+    text = _section(write_report(tmp_path, summary, "Head", {}, []).read_text(encoding="utf-8"),
+                    "Numerical uncertainty")
+    assert "time steps ±0.05 s (0.23 %; x)" in text and "mesh ±0.03 s (0.14 %; y)" in text
+    assert "about ±0.27 %" in text
 
 
 def test_report_with_odd_values(tmp_path):
@@ -102,7 +142,7 @@ def test_report_with_odd_values(tmp_path):
                "mass_balance_relative_error": 1e-9, "warnings": "one plain string"}
     inputs = {"cap polar range (deg)": (0.0, 100.0), "pipe | note": "a|b", "dry run": False}
     text = write_report(tmp_path, summary, "Odd", inputs, []).read_text(encoding="utf-8")
-    assert "1.0e-07 %" in text
+    assert "at round-off (1.0e-09)" in text
     assert "one plain string" in _section(text, "Safety figures")
     table = _section(text, "Inputs")
     assert "| cap polar range (deg) | 0, 100 |" in table
