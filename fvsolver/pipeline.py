@@ -299,7 +299,7 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
     if cycle is not None:
         summary.update(cycle.summary())
     summary["warnings"] += watch.warnings()
-    if uncertainty and monitor is not None:
+    if uncertainty and monitor is not None and cycle is None:
         from fvsolver.outputs.uncertainty import estimate
 
         summary["numerical_uncertainty"] = estimate(case, summary)

@@ -155,7 +155,6 @@ class TimeStepper:
         self._affine = affine() if affine is not None else None
         self._affine_rate = None  # F at the current state, for affine problems
         self._pending_rate = None
-        self._first_order = False  # the next try is backward Euler (a BDF2 result was not admissible)
 
     # -- public contract -------------------------------------------------------------------
     @property
@@ -192,13 +191,6 @@ class TimeStepper:
                     return False
                 continue
             y_new, m_new, err, ev, order, w_new, alpha0 = result
-            admissible = getattr(self.problem, "admissible", None)
-            if order == 2 and admissible is not None and not admissible(y_new):
-                # BDF2 extrapolates: a quantity decaying to a bound (a drying face's inventory) can
-                # overshoot it, which backward Euler cannot; the step is taken again at first order
-                self.counters.rejected += 1
-                self._first_order = True
-                continue
             if opt.adaptive and err > 1.0:
                 self.counters.rejected += 1
                 self.dt = dt * min(0.9, max(0.1, 0.9 * err ** (-1.0 / (order + 1))))
@@ -209,7 +201,6 @@ class TimeStepper:
                 continue
             break
         landing = self._landing
-        self._first_order = False
         self._accept(dt, y_new, m_new, ev, order, w_new)
         if opt.adaptive:
             factor = opt.max_growth if err == 0.0 else min(opt.max_growth, max(0.2, 0.9 * err ** (-1.0 / (order + 1))))
@@ -299,8 +290,7 @@ class TimeStepper:
 
     def _coefficients(self, dt: float):
         n_hist = len(self._history.t)
-        use_bdf2 = (self.options.scheme == "bdf2" and n_hist >= 2 and (not self.options.adaptive or n_hist >= 3)
-                    and not self._first_order)
+        use_bdf2 = self.options.scheme == "bdf2" and n_hist >= 2 and (not self.options.adaptive or n_hist >= 3)
         if not use_bdf2:
             return 1, 1.0, -1.0, 0.0
         w = dt / self._dts[0]

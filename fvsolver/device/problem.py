@@ -186,10 +186,6 @@ class DeviceProblem:
             scale[self.i_mp] = 1e-3 * self.body.initial_pool_mass
         return scale
 
-    def admissible(self, y: np.ndarray) -> bool:
-        """No condensate inventory below zero (the stepper retakes such a step at first order)."""
-        return self.inner.size == 0 or float(y[self.i_c].min()) >= 0.0
-
     def vapour_mass(self, y: np.ndarray) -> float:
         """Working-fluid vapour in the head, kg."""
         return self.vapour_reference + float(y[self.i_mv])

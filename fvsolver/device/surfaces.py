@@ -19,8 +19,8 @@ them through the evaluation ``context``:
   so a pure vapour in contact with a wet face at rest is at that face's saturation pressure
   whatever the bulk temperature (Schrage 1953 with a film-side gas temperature; the usual
   linearised interfacial form, as in ht.condensation.h_kinetic).  A face re-evaporates only what
-  it holds: an evaporating j is scaled by c+^2 / (c+^2 + c_ref^2) with c+ = max(c, 0), so a drying
-  face's inventory decays to zero and stops there.
+  it holds: an evaporating j is scaled by c+ / (c+ + c_ref), with c its condensate inventory
+  (kg/m2) and c+ a smooth positive part of c.
 """
 from __future__ import annotations
 
@@ -126,15 +126,15 @@ class CondensingWall:
         raw = beta * excess / root
         draw_dt = -beta * (dps / root + 0.5 * excess / (t * root))
         draw_dp = beta / root
-        # the inventory limiter phi = c+^2 / (c+^2 + c_ref^2), c+ = max(c, 0), smooth (C1) at zero: an
-        # evaporating face slows as it dries and stops at zero (dc/dt = raw phi(c) cannot carry c
-        # through zero; backward Euler keeps c >= 0 exactly).  j stays monotone in T_s (only a kink
-        # where the face turns), which the surface solve needs.
+        # the inventory limiter phi = c+ / (c+ + c_ref) with c+ = c_ref ln(1 + e^(c / c_ref)), a smooth
+        # positive part: an evaporating face slows as it dries and stops just below zero.  j stays
+        # monotone in T_s (only a kink where the face turns), which the surface solve needs.
         c = vap["inventory"][faces]
         cr = self.film_reference
-        plus = np.maximum(c, 0.0)
-        phi = plus * plus / (plus * plus + cr * cr)
-        dphi = 2.0 * plus * cr * cr / (plus * plus + cr * cr) ** 2
+        x = c / cr
+        plus = cr * np.logaddexp(0.0, x)
+        phi = plus / (plus + cr)
+        dphi = cr / (plus + cr) ** 2 * 0.5 * (1.0 + np.tanh(0.5 * x))  # sigmoid(x) = dplus/dc
         scale = np.where(raw < 0.0, phi, 1.0)
         j = raw * scale
         return j, draw_dt * scale, draw_dp * scale, np.where(raw < 0.0, raw * dphi, 0.0)
