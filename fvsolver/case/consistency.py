@@ -215,8 +215,8 @@ def _check_device(data: dict, v, patches, start: int) -> bool:
         if name not in data:
             data[name] = v.check(key, {}, name)
     whole = shape == "whole_device"
-    if not data["fluid"]["condensing_patches"]:
-        data["fluid"]["condensing_patches"] = ["inner_wall"] + ([] if whole or "bore" not in patches else ["bore"])
+    if whole and data["fluid"]["condensing_patches"] == list(DEFAULT_CONDENSING_PATCHES):
+        data["fluid"]["condensing_patches"] = ["inner_wall"]  # the whole device's bore holds the column
     for name in ("room",) + (("pool",) if whole else ("target",)):
         if name not in data:
             v.error(name, f"missing: a case with a [fluid] needs a [{name}] table", line_path="fluid")

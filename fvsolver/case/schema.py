@@ -238,7 +238,8 @@ FLUID = table(
         minimum=0.0),
     num("initial_film", "Condensate on each inner face at the start.", "kg/m2", 0.0, minimum=0.0),
     Key("condensing_patches", "strings", "Patches of the vapour space where vapour condenses (default: "
-        "inner_wall and bore; inner_wall alone for a whole device, whose bore holds the column).", default=[]),
+        "inner_wall and bore; inner_wall alone for a whole device, whose bore holds the column).",
+        default=["inner_wall", "bore"]),
 )
 
 SECOND_BULB = table(
