@@ -199,9 +199,6 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
         if setup.device.cycle is not None:
             from fvsolver.device.cycle import CycleController
 
-            if resume:
-                raise CaseError("--resume: a whole device's cycle cannot be resumed yet; run it again with "
-                                "--overwrite")
             cycle = CycleController(setup.problem, 0.0, setup.initial)
     if folder is not None:
         data = thaw(case.data)
@@ -218,6 +215,10 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
         rows, worst = meta["rows"], meta["worst"]
         watch.restore(meta.get("watch"))
         fields.entries = [tuple(e) for e in meta["field_entries"]]
+        if isinstance(meta.get("stop_times"), list):  # events (a cycle's tips) add their own
+            stepper.stop_times = np.unique(np.asarray(meta["stop_times"], dtype=float))
+        if cycle is not None:
+            cycle.restore(meta.get("cycle"), stepper)
     else:
         initial = setup.problem.evaluate(setup.initial, 0.0)
         if fields is not None:
@@ -232,7 +233,8 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
     def save_checkpoint():
         if folder is not None:
             checkpoint.save(folder, stepper, monitor, rows, fields.entries, case.sha256, worst,
-                            extra={"watch": watch.state()})
+                            extra={"watch": watch.state(), "stop_times": stepper.stop_times.tolist()}
+                            | ({"cycle": cycle.state()} if cycle is not None else {}))
 
     # a run killed after its target but before its summary has nothing left to step
     finished = (monitor is not None and monitor.time_to_target is not None

@@ -238,7 +238,7 @@ class TimeStepper:
         totals and the next step is a backward-Euler start."""
         if self.counters.steps == 0 or not self._history.t[1:] or self._history.t[1] != t:
             raise SolverError(f"rewind to t = {t!r} s: expected the start of the last accepted step")
-        for g, w in self._last_inflow.items():
+        for g, w in self._inflow.items():  # the undone step's own inflow
             self.cumulative_inflow[g] -= w
         self.counters.steps -= 1
         self.counters.rejected += 1
@@ -465,7 +465,6 @@ class TimeStepper:
         self._dts.insert(0, dt)
         del self._dts[3:]
         self._inflow = w_new
-        self._last_inflow = w_new
         for g, w in w_new.items():
             self.cumulative_inflow[g] = self.cumulative_inflow.get(g, 0.0) + w
         self.counters.steps += 1

@@ -215,6 +215,27 @@ class CycleController:
                 if self.spec.stop_when_settled:
                     self.finished = True
 
+    # -- checkpoints ------------------------------------------------------------------------
+    _SAVED = ("phase", "tips", "stand_times", "cycles", "finished", "settled_period", "outcome", "outcome_reason",
+              "_pending", "_stand_at", "drained", "dipped_water", "dipped_energy", "event_inflow", "_sums")
+
+    def state(self) -> dict:
+        """The controller's state, JSON-ready, for a checkpoint."""
+        return {k: getattr(self, k) for k in self._SAVED}
+
+    def restore(self, state: dict, stepper) -> None:
+        """Back to a checkpointed state, beside a stepper restored at the same step."""
+        from fvsolver.errors import CaseError
+
+        if not isinstance(state, dict) or set(state) != set(self._SAVED) or state["phase"] not in ("standing",
+                                                                                                     "tipped"):
+            raise CaseError("--resume: the checkpoint's cycle state is missing or damaged; run again with "
+                            "--overwrite")
+        for k in self._SAVED:
+            setattr(self, k, state[k])
+        self.problem.tipped = self.phase == "tipped"
+        self._previous = (stepper.t, stepper.y.copy(), self._margin(stepper.y))
+
     # -- the verdict ------------------------------------------------------------------------
     def finish(self, t_end: float, monitor, stall_reason) -> None:
         """Decide the outcome at the end of the run (``stall_reason``: callable giving the

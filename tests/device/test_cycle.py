@@ -136,3 +136,17 @@ def test_the_running_device_demo_gives_its_recorded_result():
     assert s["first_tip_s"] == pytest.approx(21.056, rel=1e-3)
     assert s["period_s"] == pytest.approx(5.293, rel=2e-3)
     assert 640 < s["dips_per_hour"] < 720 and s["water_per_day_kg"] > 0
+
+
+def test_an_interrupted_cycle_resumes_to_the_same_cycles(tmp_path):
+    """Stopped part-way (during a later cycle) and resumed: the same tips, to the last bit."""
+    from tests.test_resume import StopAfter
+
+    case = whole_case(time={"end": 40.0})
+    whole = run(case, tmp_path / "whole", plots=False)
+    out = tmp_path / "parts"
+    part = run(case, out, progress=StopAfter(whole.summary["n_steps"] - 25), checkpoint_every=0.0, plots=False)
+    assert part.summary["status"] == "interrupted" and part.summary["n_cycles"] >= 1
+    resumed = run(case, out, resume=True, checkpoint_every=0.0, plots=False)
+    assert [c["tip_time_s"] for c in resumed.cycles] == [c["tip_time_s"] for c in whole.cycles]
+    assert resumed.summary["n_steps"] == whole.summary["n_steps"]
