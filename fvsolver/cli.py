@@ -135,7 +135,9 @@ def _run(args) -> int:
     s = result.summary
     _say(args, f"{s['title'] or args.case.stem}: {s['status']} at t = {s['end_time_s']:.6g} s "
                f"({s['n_steps']} steps, {s['n_cells']} cells)")
-    if s.get("target_pressure_drop_pa") is not None:
+    if s.get("outcome"):
+        _say(args, "  " + cycle_lines(s))
+    elif s.get("target_pressure_drop_pa") is not None:
         if s["target_reached"]:
             _say(args, f"  target {s['target_pressure_drop_pa']:.0f} Pa reached at t = {s['time_to_target_s']:.2f} s")
         elif s["target_reached"] is False:
@@ -152,6 +154,7 @@ def _run(args) -> int:
             _say(args, f"  the run stopped at t = {s['end_time_s']:.6g} s: field times " + ", ".join(
                 f"{t:g}" for t in s["field_times_not_reached_s"]) + " s were not reached"
                 + (" (a field was written at the target crossing)" if s["target_reached"] else ""))
+    if s.get("max_internal_pressure_pa") is not None:
         _say(args, f"  largest internal pressure {s['max_internal_pressure_pa']:.0f} Pa, largest glass temperature "
                    f"{s['max_glass_temperature_k']:.2f} K")
     for w in s["warnings"]:
@@ -169,6 +172,20 @@ def _run(args) -> int:
     if s["status"] == "interrupted":
         return stop.exit_code or EXIT_INTERRUPTED
     return EXIT_OK
+
+
+def cycle_lines(s: dict) -> str:
+    """A whole device's outcome in a few printed lines."""
+    out = f"outcome: {s['outcome'].replace('_', ' ')} - {s['outcome_reason']}"
+    if s.get("first_tip_s") is not None:
+        out += f"\n  first tip at t = {s['first_tip_s']:.2f} s; {s['n_cycles']} tips"
+    if s.get("period_s"):
+        out += (f"\n  period {s['period_s']:.3f} s ({s['dips_per_hour']:.0f} dips per hour); water "
+                f"{1e6 * s['water_per_dip_kg']:.2f} mg per dip, {1e3 * s['water_per_day_kg']:.1f} g per day; "
+                f"evaporative cooling {s['evaporative_cooling_w']:.3f} W")
+    elif s.get("last_period_s"):
+        out += f"\n  last period {s['last_period_s']:.3f} s (not settled)"
+    return out
 
 
 def _sweep(args) -> int:

@@ -44,6 +44,9 @@ class Result:
     temperature: np.ndarray
     state: np.ndarray
     setup: Setup = field(repr=False)
+    inflow: dict = field(default_factory=dict, repr=False)   # each conserved total's inflow over the run
+    events: dict = field(default_factory=dict, repr=False)   # what a cycle's events moved into each total
+    cycles: list = field(default_factory=list, repr=False)   # a whole device's cycles.csv rows
 
 
 def _history_row(setup: Setup, stepper: TimeStepper, monitor, evaluation=None) -> dict:
@@ -186,13 +189,17 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
         folder = prepare_output(out, overwrite) if out is not None else None
     stepper = TimeStepper(setup.problem, setup.initial, 0.0, setup.end_time, setup.options,
                           stop_times=setup.field_times)
-    monitor = None
+    monitor = cycle = None
     rewettings = ()
     if setup.device is not None:
         from fvsolver.device.monitor import DeviceMonitor
 
         monitor = DeviceMonitor(setup.problem, 0.0, setup.initial)
         rewettings = setup.device.cap_water.rewettings
+        if setup.device.cycle is not None:
+            from fvsolver.device.cycle import CycleController
+
+            cycle = CycleController(setup.problem, 0.0, setup.initial)
     if folder is not None:
         data = thaw(case.data)
         data.pop("_folder", None)
@@ -208,6 +215,10 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
         rows, worst = meta["rows"], meta["worst"]
         watch.restore(meta.get("watch"))
         fields.entries = [tuple(e) for e in meta["field_entries"]]
+        if isinstance(meta.get("stop_times"), list):  # events (a cycle's tips) add their own
+            stepper.stop_times = np.unique(np.asarray(meta["stop_times"], dtype=float))
+        if cycle is not None:
+            cycle.restore(meta.get("cycle"), stepper)
     else:
         initial = setup.problem.evaluate(setup.initial, 0.0)
         if fields is not None:
@@ -222,7 +233,8 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
     def save_checkpoint():
         if folder is not None:
             checkpoint.save(folder, stepper, monitor, rows, fields.entries, case.sha256, worst,
-                            extra={"watch": watch.state()})
+                            extra={"watch": watch.state(), "stop_times": stepper.stop_times.tolist()}
+                            | ({"cycle": cycle.state()} if cycle is not None else {}))
 
     # a run killed after its target but before its summary has nothing left to step
     finished = (monitor is not None and monitor.time_to_target is not None
@@ -234,6 +246,8 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
             stepper.step()
             if stepper.status == "failed":
                 break
+            if cycle is not None and cycle.located(stepper):
+                continue  # the tip lies inside the step: it is taken again to end there
             bad = watch.check(stepper.y, stepper.t) or _step_limit(stepper, max_steps)
             if bad is not None:
                 break
@@ -241,6 +255,8 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
             for g, err in stepper.balance_error.items():
                 worst[g] = max(worst.get(g, 0.0), float(err))
             reached = monitor.after_step(stepper) if monitor is not None else False
+            if cycle is not None:
+                cycle.after_step(stepper, monitor)
             if reached and fields is not None and monitor.time_to_target < stepper.t:
                 # the field at the crossing itself, from the step's interpolant
                 fields.write(monitor.time_to_target, stepper.dense(monitor.time_to_target), None)
@@ -256,7 +272,7 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
                 last_checkpoint = wall.monotonic()
             if progress is not None:
                 progress(stepper, monitor)
-            if reached and setup.device.target.stop_when_reached:
+            if reached and setup.device.target.stop_when_reached or cycle is not None and cycle.finished:
                 break
         if bad is None and stepper.status == "finished":
             bad = watch.check(stepper.y, stepper.t)
@@ -279,14 +295,20 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
         status = "interrupted"
         reason = f"{getattr(exc, 'reason', 'stopped by the user')} at t = {stepper.t:.6g} s (continue with --resume)"
         save_checkpoint()
+    if cycle is not None and status == "complete":
+        cycle.finish(stepper.t, monitor, lambda: monitor.stall_reason(stepper.y, stepper.t))
     summary = _summary(case, setup, stepper, monitor, worst, status, reason)
+    if cycle is not None:
+        summary.update(cycle.summary())
     summary["warnings"] += watch.warnings()
     history = {k: np.array([r.get(k, np.nan) for r in rows]) for k in rows[-1]}
     if folder is not None:
         _write_csv(folder / "history.csv", rows)
+        if cycle is not None:
+            _write_csv(folder / "cycles.csv", cycle.cycles or [{"cycle": None}])
         # the summary first: the computed result is kept whatever the extras below do
         atomic_write_text(folder / "summary.json", json.dumps(summary, indent=2))
-    if uncertainty and monitor is not None and status == "complete":  # a stopped run exits now
+    if uncertainty and monitor is not None and cycle is None and status == "complete":  # a stopped run exits now
         from fvsolver.outputs.uncertainty import estimate
 
         try:
@@ -299,13 +321,16 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
     if folder is not None:
         if plots:
             try:
-                _write_plots_and_report(folder, case, setup, summary, history, fields)
+                _write_plots_and_report(folder, case, setup, summary, history, fields,
+                                        cycle.cycles if cycle else ())
             except Exception as exc:  # only the physics decides the status
                 summary["warnings"].append(f"the plots or the report could not be written ({type(exc).__name__}: "
                                            f"{str(exc)[:200]}); the results are in summary.json, history.csv and "
                                            "the field files")
                 atomic_write_text(folder / "summary.json", json.dumps(summary, indent=2))
-    result = Result(summary, history, stepper.y[: setup.mesh.n_cells].copy(), stepper.y.copy(), setup)
+    result = Result(summary, history, stepper.y[: setup.mesh.n_cells].copy(), stepper.y.copy(), setup,
+                    dict(stepper.cumulative_inflow), dict(cycle.event_inflow) if cycle else {},
+                    list(cycle.cycles) if cycle else [])
     if status == "failed":
         raise SolverError(f"the run failed: {reason} (the last good fields are in the outputs)")
     return result
@@ -371,7 +396,7 @@ def _chosen_fields(fields, summary, most: int = 8) -> list:
     return chosen
 
 
-def _write_plots_and_report(folder: Path, case, setup, summary, history, fields) -> None:
+def _write_plots_and_report(folder: Path, case, setup, summary, history, fields, cycles=()) -> None:
     from fvsolver.outputs.report import write_report
     from fvsolver.outputs.scenario import scenario_text
     from fvsolver.plotting import history_plot, temperature_field_plot
@@ -391,6 +416,11 @@ def _write_plots_and_report(folder: Path, case, setup, summary, history, fields)
                      summary["time_to_target_s"], title=plain_title(case["title"]), subtitle=scenario,
                      max_pressure_drop_pa=summary.get("max_pressure_drop_pa"))
         plots.append("history.png")
+    if cycles:
+        from fvsolver.plotting import cycle_plot
+
+        cycle_plot(history, cycles, folder / "cycles.png", title=plain_title(case["title"]))
+        plots.append("cycles.png")
     write_report(folder, summary, plain_title(case["title"] or (case.path.stem if case.path else "case")),
                  _inputs(case), plots, scenario=scenario)
 
@@ -404,8 +434,15 @@ def _inputs(case) -> dict:
                     "air speed (m/s)": r["air_speed"], "convection": r["convection"],
                     "working fluid": d["fluid"]["name"], "cap water": d["cap_water"]["mode"],
                     "second bulb": d["second_bulb"]["mode"]})
-        t = d["target"]
-        out["target"] = (f"column {t['column_height']} m" if "column_height" in t else f"{t['pressure_drop']} Pa")
+        if "cycle" in d:
+            c = d["cycle"]
+            out["tips at"] = (f"column {c['tip_column_height']} m" if "tip_column_height" in c
+                              else f"centre of mass at the pivot, {c['pivot_height']} m above the body's bottom")
+            out["water glass"] = (f"yes, at {c['water_temperature']} K" if c["water_glass"] else "no")
+            out["pool fill (m3)"] = d["pool"]["fill_volume"]
+        else:
+            t = d["target"]
+            out["target"] = (f"column {t['column_height']} m" if "column_height" in t else f"{t['pressure_drop']} Pa")
     return out
 
 

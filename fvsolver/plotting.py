@@ -683,6 +683,48 @@ def envelope_plot(temperatures: np.ndarray, humidities: np.ndarray, values: np.n
               ncol=min(4, len(kinds)), frameon=False)
     if title:
         ax.set_title(title, fontsize=10)
+
+
+def cycle_plot(history: Mapping[str, np.ndarray], cycles: Sequence[Mapping], path: Path, title: str = "") -> None:
+    """A running device: the pressure difference over the run with its tips marked, and the
+    period of each cycle; write a PNG.
+
+    Parameters
+    ----------
+    history : mapping with ``"time_s"`` (s), ``"pressure_drop_pa"`` and ``"target_pressure_drop_pa"`` (Pa)
+    cycles : rows of cycles.csv (``"tip_time_s"``, ``"period_s"``, ``"pressure_drop_at_tip_pa"``)
+    path : the PNG to write (atomically)
+    title : shown above the panels
+    """
+    t = np.asarray(history["time_s"], dtype=float)
+    fig, (top, bottom) = plt.subplots(2, 1, figsize=(8.0, 6.0), height_ratios=(2.0, 1.0), constrained_layout=True)
+    top.plot(t, np.asarray(history["pressure_drop_pa"], dtype=float), color="#1b6a8f", lw=1.2,
+             label="pressure difference body - head")
+    if "target_pressure_drop_pa" in history:
+        top.plot(t, np.asarray(history["target_pressure_drop_pa"], dtype=float), color="#8f5a1b", lw=1.0, ls="--",
+                 label="difference that tips it (centre of mass at the pivot)")
+    tips = np.array([c["tip_time_s"] for c in cycles], dtype=float)
+    if tips.size:
+        top.plot(tips, [c["pressure_drop_at_tip_pa"] for c in cycles], ls="none", marker="v", ms=7,
+                 color="#a3123a", label=f"tips ({tips.size})")
+    top.set_ylabel("pressure difference (Pa)")
+    top.set_xlabel("time (s)")
+    top.grid(alpha=0.3)
+    top.legend(loc="lower right", fontsize=8)
+    periods = [(c["tip_time_s"], c["period_s"]) for c in cycles if c.get("period_s")]
+    if periods:
+        n = np.arange(2, len(periods) + 2)
+        bottom.plot(n, [p for _, p in periods], marker="o", color="#2d7a3a", lw=1.0)
+        bottom.set_xticks(n if len(n) <= 20 else n[:: max(len(n) // 10, 1)])
+    else:
+        bottom.text(0.5, 0.5, "fewer than two tips: no period", ha="center", va="center",
+                    transform=bottom.transAxes)
+    bottom.set_xlabel("cycle (tip number)")
+    bottom.set_ylabel("period (s)")
+    bottom.grid(alpha=0.3)
+    bottom.yaxis.set_major_formatter(matplotlib.ticker.ScalarFormatter(useOffset=False))
+    if title:
+        fig.suptitle(title, fontsize=10)
     _save(fig, path)
 
 

@@ -232,6 +232,28 @@ class TimeStepper:
         self._affine_rate = None
         self.dt = float(dt if dt is not None else self.options.initial_step)
 
+    def rewind(self, t: float, y: np.ndarray) -> None:
+        """Go back to the state ``y`` at ``t`` that the last accepted step started from (an event
+        located inside that step is to be landed on instead): the step's inflow leaves the running
+        totals and the next step is a backward-Euler start."""
+        if self.counters.steps == 0 or not self._history.t[1:] or self._history.t[1] != t:
+            raise SolverError(f"rewind to t = {t!r} s: expected the start of the last accepted step")
+        for g, w in self._inflow.items():  # the undone step's own inflow
+            self.cumulative_inflow[g] -= w
+        self.counters.steps -= 1
+        self.counters.rejected += 1
+        self.t = float(t)
+        self.status = "running"  # the step that was undone may have been the last one
+        self._last_evaluation = None
+        # the retaken stretch starts afresh (backward Euler): short steps keep its error at the
+        # tolerance's level
+        self.reset(y, min(self.options.initial_step, self.last_dt))
+
+    def add_stop_time(self, t: float) -> None:
+        """A time the steps must land on exactly (an event), after the current time."""
+        if t > self.t:
+            self.stop_times = np.unique(np.append(self.stop_times, float(t)))
+
     def dense(self, t: float) -> np.ndarray:
         """State at a time inside the last step, by the scheme's interpolating polynomial."""
         h = self._history

@@ -31,6 +31,14 @@ def build_mesh(case: Case) -> Mesh:
                            g["neck_inner_radius"], g["neck_outer_radius"], g["neck_length"],
                            n_glass=m["glass_cells"] * f, n_cap=m["cap_cells"] * f, n_polar=m["polar_cells"] * f,
                            n_neck=m["neck_cells"] * f)
+    if shape == "whole_device":
+        from fvsolver.mesh.device import whole_device
+
+        return whole_device(g["bulb_inner_radius"], g["glass_thickness"], g["cap_thickness"], cap,
+                            g["neck_inner_radius"], g["neck_outer_radius"], g["tube_length"], g["body_inner_radius"],
+                            g["body_glass_thickness"], g["tube_end_gap"], n_glass=m["glass_cells"] * f,
+                            n_cap=m["cap_cells"] * f, n_polar=m["polar_cells"] * f, n_tube=m["neck_cells"] * f,
+                            n_body_polar=m["body_polar_cells"] * f, n_dip=m["dip_tube_cells"] * f)
     if shape == "two_layer_shell":
         return two_layer_shell(g["inner_radius"], g["glass_thickness"], g["cap_thickness"], cap,
                                n_glass=m["glass_cells"] * f, n_cap=m["cap_cells"] * f, n_polar=m["polar_cells"] * f)
@@ -104,7 +112,7 @@ def build_device_spec(case: Case, mesh: Mesh):
     from fvsolver.properties.fluids import get_fluid
 
     g, r, f = case["geometry"], case["room"], case["fluid"]
-    if g["shape"] == "device_head":
+    if g["shape"] in ("device_head", "whole_device"):
         inner, outer = g["bulb_inner_radius"], g["bulb_inner_radius"] + g["glass_thickness"] + g["cap_thickness"]
     elif g["shape"] == "two_layer_shell":
         inner, outer = g["inner_radius"], g["inner_radius"] + g["glass_thickness"] + g["cap_thickness"]
@@ -126,10 +134,71 @@ def build_device_spec(case: Case, mesh: Mesh):
                          tuple(f["condensing_patches"]))
     b = case["second_bulb"]
     bulb = SecondBulb(b["mode"], b["heat_capacity"], b["loss_conductance"], b["heater_power"], b["initial_temperature"])
+    s = case["safety"]
+    safety = Safety(s["max_absolute_pressure"], s["max_glass_temperature"])
+    if g["shape"] == "whole_device":
+        body, cycle = build_body(case, mesh)
+        # the tip replaces the target: the pressure difference is followed cycle after cycle
+        return DeviceSpec(room, water, vapour, bulb, Target(None, None, False), safety, body, cycle)
     t = case["target"]
     target = Target(t.get("pressure_drop"), t.get("column_height"), t["stop_when_reached"])
-    s = case["safety"]
-    return DeviceSpec(room, water, vapour, bulb, target, Safety(s["max_absolute_pressure"], s["max_glass_temperature"]))
+    return DeviceSpec(room, water, vapour, bulb, target, safety)
+
+
+def build_body(case: Case, mesh: Mesh):
+    """A whole device's body (pool) and cycle (tip model) from the case and its mesh."""
+    from fvsolver.device.body import PoolGeometry, TipModel
+    from fvsolver.device.spec import Body, CycleSpec
+    from fvsolver.errors import CaseError
+    from fvsolver.mesh.device import device_layout
+    from fvsolver.properties.fluids import get_fluid
+
+    g, pool, cyc, cap = case["geometry"], case["pool"], case["cycle"], case["cap"]
+    fluid = get_fluid(case["fluid"]["name"])
+    layout = device_layout(g["bulb_inner_radius"], g["glass_thickness"], g["neck_inner_radius"],
+                           g["neck_outer_radius"], g["tube_length"], g["body_inner_radius"],
+                           g["body_glass_thickness"], g["tube_end_gap"])
+    geometry = PoolGeometry.from_fill(layout, pool["fill_volume"])
+    mass = pool["fill_volume"] * float(fluid.liquid_density(pool["fill_temperature"]))
+    t0 = pool["initial_temperature"]
+    body = Body(geometry, mass, t0, pool["heat_transfer_coefficient"], pool["vapour_heat_transfer_coefficient"],
+                float(fluid.liquid_heat_capacity(t0)), 2.0 * layout.body_outer_radius,
+                tuple((h["patch"], h["air_temperature"], h["air_speed"]) for h in case["hot_air"]),
+                cyc["equalisation_time"])
+    # the fixed masses: glass from the mesh, the cap's fibres, the added parts (heights from the body's bottom)
+    z = mesh.cell_centres[:, 1]
+    v = mesh.cell_volumes
+    glass = mesh.cell_material == mesh.material_names.index("glass")
+    caps = ~glass
+    rho_glass = case["materials"]["glass"]["density"]
+    fibres = cap["fibre_density"] * (1.0 - cap["porosity"])
+    fixed_mass = rho_glass * v[glass].sum() + fibres * v[caps].sum()
+    fixed_moment = rho_glass * (v[glass] * z[glass]).sum() + fibres * (v[caps] * z[caps]).sum()
+    for part in cyc["added_parts"]:
+        fixed_mass += part["mass"]
+        fixed_moment += part["mass"] * (layout.body_bottom_z + part["height"])
+    pivot = cyc.get("pivot_height")
+    tip = TipModel(fixed_mass, fixed_moment, math.pi * layout.tube_inner_radius**2, layout.tube_top_z,
+                   geometry.centroid_z, geometry.level_z, float(np.average(z[caps], weights=v[caps])),
+                   None if pivot is None else layout.body_bottom_z + pivot, cyc.get("tip_column_height"))
+    cycle = CycleSpec(tip, cyc["tipped_time"], cyc["refill_time"], cyc["water_glass"], cyc["water_temperature"],
+                      cyc["period_tolerance"], cyc["settle_cycles"], cyc["max_cycles"], cyc["stop_when_settled"])
+    return body, cycle
+
+
+def _check_tip(case: Case, problem, initial: np.ndarray) -> None:
+    """The column that tips the device must fit the tube at the start."""
+    from fvsolver.errors import CaseError
+
+    height = problem.column(initial)["tip_height_m"]
+    tip = problem.spec.cycle.tip
+    if not 0.0 < height < tip.max_column:
+        pivot = case["cycle"].get("pivot_height")
+        where = "cycle.pivot_height" if pivot is not None else "cycle.tip_column_height"
+        fix = ("raise the pivot (the centre of mass is above it already)" if height <= 0.0 else
+               "lower the pivot or add mass low down") if pivot is not None else "shorten the column"
+        raise CaseError(f"{where}: the device would tip at a column of {height:.4g} m, expected one between 0 and "
+                        f"{tip.max_column:.4g} m (from the pool's level to the head); {fix}")
 
 
 @dataclass(frozen=True)
@@ -167,6 +236,8 @@ def build(case: Case) -> Setup:
     spec = build_device_spec(case, mesh)
     problem = DeviceProblem(mesh, materials, build_conditions(case), spec, sources)
     initial = problem.initial_state(case["initial"]["temperature"])
+    if spec.cycle is not None:
+        _check_tip(case, problem, initial)
     rewet = [w[0] for w in spec.cap_water.rewettings]
     stops = np.unique(np.concatenate([stops, rewet]))
     return Setup(mesh, problem, build_options(case), initial, case["time"]["end"], stops, spec)

@@ -8,6 +8,10 @@ from fvsolver.case.loader import excerpt
 from fvsolver.case.schema import SHAPES
 
 GLASS, CAP, AXIS = "glass", "cap", "axis"
+WHOLE_DEVICE_PATCHES = ("axis", "inner_wall", "bore", "glass_outer", "cap_outer", "cap_edge", "neck_outer",
+                        "body_inner", "body_outer", "dip_tube_outer", "tube_end")
+BODY_PATCHES = ("body_inner", "dip_tube_outer", "tube_end")  # in the pool or the body's vapour
+OUTER_PATCHES = ("cap_outer", "cap_edge", "glass_outer", "neck_outer", "body_outer")
 
 
 def shape_tags(geometry: dict) -> tuple[tuple, tuple]:
@@ -17,6 +21,7 @@ def shape_tags(geometry: dict) -> tuple[tuple, tuple]:
     return {
         "device_head": (("axis", "inner_wall", "bore", "glass_outer", "cap_outer", "cap_edge", "neck_outer",
                          "neck_end"), (GLASS, CAP)),
+        "whole_device": (WHOLE_DEVICE_PATCHES, (GLASS, CAP)),
         "two_layer_shell": (("axis", "inner_wall", "glass_outer", "cap_outer", "cap_edge"), (GLASS, CAP)),
         "spherical_shell": (("axis", "inner", "outer"), one),
         "solid_sphere": (("axis", "surface"), one),
@@ -58,7 +63,7 @@ def check_consistency(data: dict, v) -> None:
             v.error(f"geometry.{name}", f"not used by shape {shape!r} (it takes {', '.join(needed)}); remove it")
     if len(v.problems) > start:
         return
-    if shape in ("device_head", "two_layer_shell"):
+    if shape in ("device_head", "two_layer_shell", "whole_device"):
         if not geo["cap_from_deg"] < geo["cap_to_deg"]:
             v.error("geometry.cap_to_deg", f"got {geo['cap_to_deg']!r}, expected more than cap_from_deg "
                     f"({geo['cap_from_deg']!r}): the cap covers the polar range from cap_from_deg to cap_to_deg")
@@ -75,6 +80,8 @@ def check_consistency(data: dict, v) -> None:
             if geo["cap_to_deg"] >= limit:
                 v.error("geometry.cap_to_deg", f"got {geo['cap_to_deg']!r}, expected less than {limit:.2f} deg, "
                         "where the neck tube meets the bulb; the cap must fit the bulb")
+    if shape == "whole_device":
+        _check_whole_device_geometry(geo, v)
     if shape == "two_layer_shell" and geo["cap_to_deg"] >= 180.0:
         v.error("geometry.cap_to_deg", f"got {geo['cap_to_deg']!r}, expected less than 180 (a rim is needed)")
     if shape in ("spherical_shell", "hollow_cylinder") and not geo["inner_radius"] < geo["outer_radius"]:
@@ -184,7 +191,7 @@ DEFAULT_CONDENSING_PATCHES = ("inner_wall", "bore")
 
 def device_patches(data: dict, patches) -> tuple:
     """Patches the device model sets: the cap, the vapour-space walls, the bare outer glass."""
-    fixed = ("cap_outer", "cap_edge", "glass_outer", "neck_outer")
+    fixed = OUTER_PATCHES + (BODY_PATCHES + ("bore",) if data["geometry"]["shape"] == "whole_device" else ())
     return tuple(p for p in patches if p in fixed or p in data["fluid"]["condensing_patches"])
 
 
@@ -195,8 +202,9 @@ def _check_device(data: dict, v, patches, start: int) -> bool:
     from fvsolver.properties.fluids import FLUIDS, get_fluid
 
     shape = data["geometry"]["shape"]
-    if shape not in ("device_head", "two_layer_shell", "mesh_file"):
-        v.error("geometry.shape", f"got {shape!r}, expected 'device_head' or 'two_layer_shell' with a [fluid] "
+    if shape not in ("device_head", "two_layer_shell", "whole_device", "mesh_file"):
+        v.error("geometry.shape", f"got {shape!r}, expected 'device_head', 'whole_device' or 'two_layer_shell' "
+                "with a [fluid] "
                 "(the device needs a cap and a vapour space)")
         return False
     for needed in ("cap_outer", "inner_wall"):
@@ -206,7 +214,10 @@ def _check_device(data: dict, v, patches, start: int) -> bool:
     for name, key in (("cap", CAP_KEY), ("cap_water", CAP_WATER), ("second_bulb", SECOND_BULB)):
         if name not in data:
             data[name] = v.check(key, {}, name)
-    for name in ("room", "target"):
+    whole = shape == "whole_device"
+    if whole and data["fluid"]["condensing_patches"] == list(DEFAULT_CONDENSING_PATCHES):
+        data["fluid"]["condensing_patches"] = ["inner_wall"]  # the whole device's bore holds the column
+    for name in ("room",) + (("pool",) if whole else ("target",)):
         if name not in data:
             v.error(name, f"missing: a case with a [fluid] needs a [{name}] table", line_path="fluid")
     if len(v.problems) > start:
@@ -216,7 +227,7 @@ def _check_device(data: dict, v, patches, start: int) -> bool:
     except PropertyError:
         v.error("fluid.name", f"got {data['fluid']['name']!r}, expected one of {', '.join(FLUIDS)}")
         return False
-    room, target, water = data["room"], data["target"], data["cap_water"]
+    room, target, water = data["room"], data.get("target", {}), data["cap_water"]
     t_air = room["air_temperature"]
     eq = fluid.vapour_pressure
     if not eq.t_min <= t_air <= eq.t_max:
@@ -231,7 +242,9 @@ def _check_device(data: dict, v, patches, start: int) -> bool:
     room.setdefault("surroundings_temperature", t_air)
     water.setdefault("reservoir_temperature", t_air)
     data["second_bulb"].setdefault("initial_temperature", t_air)
-    if ("column_height" in target) == ("pressure_drop" in target):
+    if whole:
+        _check_cycle(data, v, t_air)
+    elif ("column_height" in target) == ("pressure_drop" in target):
         v.error("target", "expected exactly one of column_height (m) or pressure_drop (Pa)")
     if not water["residual_saturation"] < water["critical_saturation"] <= 1.0:
         v.error("cap_water.critical_saturation", f"got {water['critical_saturation']!r}, expected more than "
@@ -242,22 +255,26 @@ def _check_device(data: dict, v, patches, start: int) -> bool:
     for i, w in enumerate(water["rewettings"]):
         if not 0.0 < w["time"] < end:
             v.error(f"cap_water.rewettings[{i}].time", f"got {w['time']!r}, expected a time in (0, {end!r}) s")
-    outer = ("cap_outer", "cap_edge", "glass_outer", "neck_outer")
     fluid_table = data["fluid"]
     if fluid_table["condensing_patches"] == list(DEFAULT_CONDENSING_PATCHES):
         # the default names the device head's walls; a two-layer shell has no bore
         fluid_table["condensing_patches"] = [p for p in DEFAULT_CONDENSING_PATCHES if p in patches]
-    dry = outer + ("axis", "neck_end")
+    dry = OUTER_PATCHES + ("axis", "neck_end") + (BODY_PATCHES if whole else ())
     inner = [p for p in patches if p not in dry]
     for p in fluid_table["condensing_patches"]:
         if p not in patches or p in dry:
-            what = "an outer or axis patch, where no vapour is" if p in patches else "no such patch"
+            what = "an outer, axis or body patch, where no head vapour is" if p in patches else "no such patch"
             v.error("fluid.condensing_patches", f"got {p!r} ({what}), expected patches of the vapour space "
                     f"(one of {', '.join(inner)})")
+    outer = ", ".join(p for p in OUTER_PATCHES if p in patches)
     for i, hs in enumerate(data["heat_sources"]):
-        if hs["patch"] not in outer or hs["patch"] not in patches:
-            v.error(f"heat_sources[{i}].patch", f"got {hs['patch']!r}, expected an outer patch of the head "
-                    f"({', '.join(p for p in outer if p in patches)})")
+        if hs["patch"] not in OUTER_PATCHES or hs["patch"] not in patches:
+            v.error(f"heat_sources[{i}].patch", f"got {hs['patch']!r}, expected an outer patch ({outer})")
+    for i, hs in enumerate(data["hot_air"]):
+        if not whole:
+            v.error(f"hot_air[{i}]", "warm air streams act on a whole device's bulbs; use shape = 'whole_device'")
+        elif hs["patch"] not in OUTER_PATCHES:
+            v.error(f"hot_air[{i}].patch", f"got {hs['patch']!r}, expected an outer patch ({outer})")
     return len(v.problems) == start
 
 
@@ -275,3 +292,42 @@ def _check_wet_bulb(room: dict, v) -> None:
             return  # other range problems are reported by the checks of those keys
         v.error("room.relative_humidity", f"got {rh!r} at air_temperature {t!r} K: the wet-bulb temperature "
                 "is below 0 C, so the wet cap would freeze (not modelled); use a warmer or more humid room")
+
+
+def _check_whole_device_geometry(geo: dict, v) -> None:
+    """The whole device's dimensions, with the mesh builder's own checks (same messages)."""
+    from fvsolver.errors import MeshError
+    from fvsolver.mesh.device import device_layout
+
+    try:
+        layout = device_layout(geo["bulb_inner_radius"], geo["glass_thickness"], geo["neck_inner_radius"],
+                               geo["neck_outer_radius"], geo["tube_length"], geo["body_inner_radius"],
+                               geo["body_glass_thickness"], geo["tube_end_gap"])
+    except MeshError as exc:
+        v.error("geometry", str(exc))
+        return
+    limit = 180.0 - math.degrees(math.asin(layout.tube_outer_radius / layout.head_outer_radius))
+    if geo["cap_to_deg"] >= limit:
+        v.error("geometry.cap_to_deg", f"got {geo['cap_to_deg']!r}, expected less than {limit:.2f} deg, where the "
+                "tube meets the head; the cap must fit the bulb")
+
+
+def _check_cycle(data: dict, v, t_air: float) -> None:
+    """The pool and the tipping of a whole device; fills their defaults."""
+    from fvsolver.case.schema import CYCLE
+
+    if "cycle" not in data:
+        data["cycle"] = v.check(CYCLE, {}, "cycle")
+    cycle, pool = data["cycle"], data["pool"]
+    pool.setdefault("fill_temperature", t_air)
+    pool.setdefault("initial_temperature", t_air)
+    cycle.setdefault("water_temperature", t_air)
+    if ("pivot_height" in cycle) == ("tip_column_height" in cycle):
+        v.error("cycle", "expected exactly one of pivot_height (m, the device tips when its centre of mass rises to "
+                "it) or tip_column_height (m)", line_path="cycle")
+    if "target" in data:
+        v.error("target", "a whole device tips where its centre of mass reaches the pivot: give [cycle] "
+                "pivot_height or tip_column_height instead of [target]")
+    if data["cap_water"]["rewettings"] and cycle["water_glass"]:
+        v.error("cap_water.rewettings", "a water glass wets the cap at every dip; leave out the rewettings or set "
+                "cycle.water_glass = false")

@@ -86,6 +86,9 @@ SOURCE = table(
 SHAPES = {
     "device_head": ("bulb_inner_radius", "glass_thickness", "cap_thickness", "cap_from_deg", "cap_to_deg",
                     "neck_inner_radius", "neck_outer_radius", "neck_length"),
+    "whole_device": ("bulb_inner_radius", "glass_thickness", "cap_thickness", "cap_from_deg", "cap_to_deg",
+                     "neck_inner_radius", "neck_outer_radius", "tube_length", "body_inner_radius",
+                     "body_glass_thickness", "tube_end_gap"),
     "two_layer_shell": ("inner_radius", "glass_thickness", "cap_thickness", "cap_from_deg", "cap_to_deg"),
     "spherical_shell": ("inner_radius", "outer_radius"),
     "solid_sphere": ("radius",),
@@ -102,6 +105,10 @@ LENGTH_DOCS = {
     "neck_inner_radius": "Inner (bore) radius of the neck tube.",
     "neck_outer_radius": "Outer radius of the neck tube.",
     "neck_length": "Length of the neck tube below the bulb.",
+    "tube_length": "Length of the tube between the head's and the body's outer glass (whole device).",
+    "body_inner_radius": "Inner radius of the body bulb (whole device).",
+    "body_glass_thickness": "Thickness of the body bulb's glass (whole device).",
+    "tube_end_gap": "Distance from the dip tube's lower end to the body's inner bottom (whole device).",
     "inner_radius": "Inner radius.",
     "outer_radius": "Outer radius.",
     "radius": "Radius.",
@@ -128,7 +135,12 @@ MESH = table(
     Key("cap_cells", "integer", "Cells through the porous cap (8 keep the demo's mesh error near 0.1 %).", default=8,
         minimum=2),
     Key("polar_cells", "integer", "Cells along the bulb's meridian.", default=48, minimum=4),
-    Key("neck_cells", "integer", "Cells along the neck tube.", default=16, minimum=2),
+    Key("neck_cells", "integer", "Cells along the neck tube (whole device: the tube between the bulbs).",
+        default=16, minimum=2),
+    Key("body_polar_cells", "integer", "Cells along the body bulb's meridian (whole device).", default=24,
+        minimum=4),
+    Key("dip_tube_cells", "integer", "Cells along the dip tube inside the body (whole device).", default=8,
+        minimum=2),
     Key("radial_cells", "integer", "Cells across a radius or wall (other shapes).", default=16, minimum=2),
     Key("axial_cells", "integer", "Cells along z (cylinders and slabs).", default=16, minimum=1),
     Key("refinement", "integer", "Multiply every cell count by this (mesh studies).", default=1, minimum=1),
@@ -179,6 +191,8 @@ HEAT_SOURCE = table(
     "heat_source", "A heat flux imposed on an outer patch of the head (a lamp, sunlight).",
     Key("patch", "string", "The patch it falls on.", default=REQUIRED),
     num("heat_flux", "Heat flux into the surface.", "W/m2", REQUIRED),
+    Key("kind", "string", "What it is, for the report and its cautions.", default="lamp",
+        choices=("lamp", "heater", "flame", "sunlight")),
 )
 
 CAP = table(
@@ -223,7 +237,8 @@ FLUID = table(
     num("non_condensable_pressure", "Partial pressure of air left in the head at the start.", "Pa", 0.0,
         minimum=0.0),
     num("initial_film", "Condensate on each inner face at the start.", "kg/m2", 0.0, minimum=0.0),
-    Key("condensing_patches", "strings", "Patches of the vapour space where vapour condenses.",
+    Key("condensing_patches", "strings", "Patches of the vapour space where vapour condenses (default: "
+        "inner_wall and bore; inner_wall alone for a whole device, whose bore holds the column).",
         default=["inner_wall", "bore"]),
 )
 
@@ -242,6 +257,53 @@ TARGET = table(
     num("column_height", "Height of liquid column to lift.", "m", positive=True),
     num("pressure_drop", "Pressure difference to reach (instead of a column height).", "Pa", positive=True),
     Key("stop_when_reached", "boolean", "End the run when the target is reached.", default=True),
+)
+
+POOL = table(
+    "pool", "The working fluid's liquid in the body bulb (whole device): well mixed, one temperature.",
+    num("fill_volume", "Liquid volume filled into the device.", "m3", REQUIRED, positive=True),
+    num("fill_temperature", "Temperature at which fill_volume was measured (default: the air's).", "K",
+        positive=True),
+    num("initial_temperature", "Starting temperature of the pool (default: the air's).", "K", positive=True),
+    num("heat_transfer_coefficient", "Pool to the wetted inner glass (natural convection in the liquid).",
+        "W/(m2 K)", 150.0, positive=True),
+    num("vapour_heat_transfer_coefficient", "The body's saturated vapour to its inner glass above the pool.",
+        "W/(m2 K)", 20.0, minimum=0.0),
+)
+
+ADDED_PART = table(
+    "added_part", "A part fixed to the device (a beak, a hat, the pivot's cross bar): a point mass.",
+    num("mass", "Its mass.", "kg", REQUIRED, positive=True),
+    num("height", "Height of its centre of mass above the body's bottom (outer glass).", "m", REQUIRED),
+)
+
+CYCLE = table(
+    "cycle", "The running device (whole device): tip, dip, stand up, again.",
+    num("pivot_height", "Height of the pivot above the body's bottom (outer glass): the device tips when its "
+        "centre of mass rises to it.", "m", positive=True),
+    num("tip_column_height", "Or: the column height at which it tips, given directly.", "m", positive=True),
+    num("tipped_time", "How long it stays tipped (vapour spaces joined, column draining).", "s", 2.0,
+        positive=True),
+    num("equalisation_time", "Time constant of the pressure equalisation while tipped.", "s", 0.01,
+        positive=True),
+    num("refill_time", "A column that refills to the tip within this time of standing up holds the device "
+        "tipped.", "s", 1.0, positive=True),
+    Key("water_glass", "boolean", "The cap dips into a glass of water at every tip.", default=False),
+    num("water_temperature", "Temperature of the water in the glass (default: the air's).", "K", None, 274.15,
+        372.0),
+    num("period_tolerance", "Consecutive periods within this fraction count as settled.", "", 0.005,
+        positive=True, maximum=0.5),
+    Key("settle_cycles", "integer", "Consecutive periods that must agree.", default=3, minimum=2),
+    Key("max_cycles", "integer", "Stop after this many tips.", default=200, minimum=1),
+    Key("stop_when_settled", "boolean", "End the run once the period has settled.", default=True),
+    Key("added_parts", "tables", "Point masses fixed to the device.", default=[], item=ADDED_PART),
+)
+
+HOT_AIR = table(
+    "hot_air_stream", "A stream of warm air over an outer patch (forced convection, sphere of the bulb's size).",
+    Key("patch", "string", "The patch it blows on (e.g. body_outer).", default=REQUIRED),
+    num("air_temperature", "The stream's temperature.", "K", REQUIRED, 274.15, 400.0),
+    num("air_speed", "The stream's speed.", "m/s", REQUIRED, positive=True, maximum=30.0),
 )
 
 SAFETY = table(
@@ -267,8 +329,10 @@ CASE = table(
         default={}, item=PATCH),
     Key("sources", "tables", "Volumetric heat sources.", default=[], item=SOURCE),
     ROOM, CAP, CAP_WATER, FLUID, SECOND_BULB, TARGET,
-    Key("heat_sources", "tables", "Heat fluxes imposed on outer patches of the head.", default=[],
-        item=HEAT_SOURCE),
+    Key("heat_sources", "tables", "Heat fluxes imposed on outer patches (the head's; the body's too for a "
+        "whole device).", default=[], item=HEAT_SOURCE),
+    POOL, CYCLE,
+    Key("hot_air", "tables", "Warm air streams over outer patches (whole device).", default=[], item=HOT_AIR),
     table("safety", SAFETY.doc, *SAFETY.children, default={}),
     table("time", "Simulated time.", num("end", "End of the simulation.", "s", REQUIRED, positive=True),
           default=REQUIRED),

@@ -35,6 +35,10 @@ class DeviceMonitor:
         self._update_extremes(t0, y0)
 
     def target(self, y: np.ndarray) -> float:
+        """The pressure difference to reach, Pa: the target's, or for a whole device the one whose
+        column brings the centre of mass to the pivot."""
+        if self.spec.cycle is not None:
+            return self.problem.tip_pressure_drop(y)
         return self.spec.target.value(self.spec.vapour.fluid, float(y[self.problem.i_tb]))
 
     def margin(self, y: np.ndarray) -> float:

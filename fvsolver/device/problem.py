@@ -1,4 +1,4 @@
-"""The device head coupled to its lumped states, advanced together in one implicit step.
+r"""The device head coupled to its lumped states, advanced together in one implicit step.
 
 State vector y = [T (n_cells) | m_v | c (n_inner) | W | T_b]:
 
@@ -6,10 +6,22 @@ State vector y = [T (n_cells) | m_v | c (n_inner) | W | T_b]:
 * m_v: working-fluid vapour mass in the head's vapour space, kg, as its change from the fill;
 * c: condensate inventory of each inner-wall face, kg/m2;
 * W: water held by the cap, kg (constant when a reservoir keeps it wet);
-* T_b: temperature of the second bulb, K (constant when it follows the room).
+* T_b: temperature of the second bulb, K (constant when it follows the room); in a whole device,
+  the pool's temperature;
+* m_p (whole device only): the pool's mass, kg.
 
-Conserved totals: the head's energy, the working fluid (m_v + sum A c, closed), the cap
-water, and the second bulb's energy.
+Conserved totals: the head's energy, the working fluid (m_v + sum A c, closed; + m_p in a whole
+device), the cap water, and the second bulb's (the pool's) energy.
+
+A whole device's body glass is meshed with the head: the pool exchanges heat with its inner
+glass (:class:`fvsolver.device.body.PoolContact`), its vapour is at p_sat(T_p), and while the
+device is tipped (``tipped``) the two vapour spaces are joined: vapour flows from the pool into
+the head at
+
+.. math:: G = \frac{V M}{R T_0 \tau}\,(p_{sat}(T_p) - p_v),
+
+which brings the head to the body's pressure within a few equalisation times tau; the pool pays
+the vapour's enthalpy G (c_l (T_p - T_ref) + L(T_p)).
 """
 from __future__ import annotations
 
@@ -20,7 +32,9 @@ import scipy.sparse as sp
 
 from fvsolver.boundary import PatchCondition
 from fvsolver.conduction import ConductionProblem, Evaluation
-from fvsolver.device.spec import DeviceSpec
+from fvsolver.device.body import PoolContact
+from fvsolver.device.spec import GRAVITY, DeviceSpec
+from fvsolver.materials import REFERENCE_TEMPERATURE
 from fvsolver.device.surfaces import CondensingWall, EvaporativeCap, RoomSurface
 from fvsolver.linear import LowRankUpdate
 from fvsolver.properties import convection, moist_air, porous
@@ -28,6 +42,8 @@ from fvsolver.properties.fluids import UNIVERSAL_GAS_CONSTANT
 
 CAP_PATCHES = ("cap_outer", "cap_edge")
 ROOM_PATCHES = ("glass_outer", "neck_outer")
+BODY_ROOM_PATCHES = ("body_outer",)
+POOL_PATCHES = ("body_inner", "dip_tube_outer", "tube_end")
 
 
 @dataclass
@@ -86,11 +102,25 @@ class DeviceProblem:
                    for p in CAP_PATCHES if p in mesh.patch_names}
         coupled.update({p: (self.wall_term,) for p in spec.vapour.patches})
         given = {c.patch: c for c in conditions}
-        for p in ROOM_PATCHES:
+        body = spec.body
+        hot = {patch: (t_air, speed) for patch, t_air, speed in (body.hot_air if body is not None else ())}
+        for p in ROOM_PATCHES + BODY_ROOM_PATCHES:
             if p in mesh.patch_names and p not in given:
                 flux = spec.room.extra_flux.get(p, 0.0)
+                if p in hot:  # a warm air stream replaces the room's air on this patch
+                    coupled[p] = (RoomSurface(hot[p][0], room.emissivity, room.surroundings_temperature, flux,
+                                              "hot_air:" + p),)
+                    continue
+                exchange = "body" if p in BODY_ROOM_PATCHES else "room"
                 coupled[p] = (RoomSurface(room.air_temperature, room.emissivity, room.surroundings_temperature,
-                                          flux),)
+                                          flux, exchange),)
+        self.tipped = False  # a whole device's vapour spaces are joined while it is tipped
+        self._context_cache = None
+        if body is not None:
+            contact = PoolContact(body.pool.level_z, body.liquid_coefficient, body.vapour_coefficient)
+            coupled.update({p: (contact,) for p in POOL_PATCHES if p in mesh.patch_names})
+            if "bore" not in coupled and "bore" in mesh.patch_names:
+                coupled["bore"] = ()  # the column stands in it at the pool's temperature: insulated
         all_conditions = [c for c in conditions if c.patch not in coupled]
         all_conditions += [PatchCondition(p, terms) for p, terms in coupled.items()]
         self.conduction = ConductionProblem(mesh, materials, all_conditions, sources)
@@ -104,6 +134,21 @@ class DeviceProblem:
         self.i_mv, self.i_c = n, np.arange(n + 1, n + 1 + n_in)
         self.i_w, self.i_tb = n + 1 + n_in, n + 2 + n_in
         self.n = n + n_in + 3
+        self.body = body
+        self.i_mp = None
+        if body is not None:
+            self.i_mp = self.n
+            self.n += 1
+            self.pool_faces = np.concatenate([mesh.patch_faces(p) for p in POOL_PATCHES if p in mesh.patch_names])
+            self.body_faces = np.concatenate([mesh.patch_faces(p) for p in BODY_ROOM_PATCHES])
+            contact = mesh.boundary_areas[self.pool_faces] * PoolContact(
+                body.pool.level_z, body.liquid_coefficient, body.vapour_coefficient).coefficient(
+                mesh.boundary_centres[self.pool_faces])
+            self.pool_conductance = float(contact.sum())  # W/K
+            # the joined vapour spaces' conductance, kg/(s Pa)
+            self.joint_conductance = (spec.vapour.volume * spec.vapour.fluid.molar_mass
+                                      / (UNIVERSAL_GAS_CONSTANT * spec.vapour.initial_temperature
+                                         * body.equalisation_time))
         self.cap_cells = mesh.material_cells("cap")
         self.cap_material = materials["cap"]
         self.cap_volume = float(mesh.cell_volumes[self.cap_cells].sum())
@@ -126,6 +171,9 @@ class DeviceProblem:
         y[self.i_c] = s.vapour.initial_film
         y[self.i_w] = s.cap_water.initial_saturation * self.pore_water_capacity
         y[self.i_tb] = s.second_bulb.initial_temperature
+        if self.body is not None:
+            y[self.i_tb] = self.body.initial_temperature
+            y[self.i_mp] = self.body.initial_pool_mass
         return y
 
     def _tolerance_scale(self) -> np.ndarray:
@@ -134,6 +182,8 @@ class DeviceProblem:
         scale[self.i_mv] = 0.04 * m0             # about one kelvin's worth of saturated vapour
         scale[self.i_c] = max(self.spec.vapour.initial_film, 1e-2)  # inventories do not steer the steps
         scale[self.i_w] = 0.01 * max(self.pore_water_capacity, 1e-9)
+        if self.body is not None:
+            scale[self.i_mp] = 1e-3 * self.body.initial_pool_mass
         return scale
 
     def vapour_mass(self, y: np.ndarray) -> float:
@@ -162,7 +212,34 @@ class DeviceProblem:
         return {"head_vapour_pa": p_v, "head_pa": p_head, "second_bulb_pa": p_bulb,
                 "pressure_drop_pa": p_bulb - p_head, "vapour_temperature_k": t_v}
 
+    def column(self, y: np.ndarray) -> dict:
+        """A whole device's liquid column: the height the pressure difference holds (m, quasi-static),
+        the height at which the device tips (m) and the liquid's density (kg/m3)."""
+        fluid, tip = self.spec.vapour.fluid, self.spec.cycle.tip
+        rho = float(fluid.liquid_density(y[self.i_tb]))
+        condensate = self.inner_area * y[self.i_c]
+        z = self.mesh.boundary_centres[self.inner, 1]
+        tip_height = tip.tip_column(float(y[self.i_mp]), rho, float(y[self.i_w]), float(condensate.sum()),
+                                    float(np.dot(condensate, z)))
+        height = max(self.pressures(y)["pressure_drop_pa"], 0.0) / (rho * GRAVITY)
+        return {"height_m": height, "tip_height_m": tip_height, "density": rho}
+
+    def tip_pressure_drop(self, y: np.ndarray) -> float:
+        """The pressure difference (Pa) that tips a whole device now."""
+        c = self.column(y)
+        return self.spec.cycle.tip.tip_pressure(c["tip_height_m"], c["density"])
+
     def context(self, y: np.ndarray) -> dict:
+        """The lumped state as the coupled surfaces see it (the last one is kept: capacity and
+        evaluate ask for the same state in turn)."""
+        cached = self._context_cache
+        if cached is not None and cached[1] == self.tipped and np.array_equal(cached[0], y):
+            return cached[2]
+        ctx = self._context(y)
+        self._context_cache = (y.copy(), self.tipped, ctx)
+        return ctx
+
+    def _context(self, y: np.ndarray) -> dict:
         T = y[: self.n_cells]
         spec, room = self.spec, self.spec.room
         s = self.saturation(y[self.i_w])
@@ -181,15 +258,38 @@ class DeviceProblem:
         inventory = np.zeros(self.mesh.n_boundary)
         inventory[self.inner] = y[self.i_c]
         p = self.pressures(y)
-        return {"cap": {"h": h, "h_m": h_m, "wet_fraction": wet, "saturation": s},
-                "room": {"h": h},
-                "vapour": {"pressure": p["head_vapour_pa"], "temperature": p["vapour_temperature_k"],
-                           "inventory": inventory}}
+        ctx = {"cap": {"h": h, "h_m": h_m, "wet_fraction": wet, "saturation": s},
+               "room": {"h": h},
+               "vapour": {"pressure": p["head_vapour_pa"], "temperature": p["vapour_temperature_k"],
+                          "inventory": inventory}}
+        if self.body is not None:
+            ctx.update(self._body_context(T, y))
+        return ctx
+
+    def _body_context(self, T: np.ndarray, y: np.ndarray) -> dict:
+        """The pool's temperature and the body bulb's outside coefficients (room, warm air streams)."""
+        room, faces = self.spec.room, self.body_faces
+        t_surf = float(np.average(T[self.mesh.boundary_cell[faces]], weights=self.mesh.boundary_areas[faces]))
+        t_surf = float(np.clip(t_surf, 274.0, 390.0))  # the correlations' range; iterates may stray
+        d = self.body.diameter
+        if room.convection == "given":
+            h = room.heat_transfer_coefficient
+        else:
+            h = float(convection.sphere_convection(d, min(t_surf, 320.0), room.air_temperature, room.pressure,
+                                                   room.air_speed, room.convection).h)
+        out = {"pool": {"temperature": float(y[self.i_tb])}, "body": {"h": h}}
+        for patch, t_air, speed in self.body.hot_air:
+            out["hot_air:" + patch] = {"h": float(convection.sphere_convection(d, t_surf, t_air, room.pressure,
+                                                                                speed, "forced").h)}
+        return out
 
     # -- the stepper's interface -------------------------------------------------------------------
     def balance_groups(self) -> dict:
         """Conserved totals; the cap water and the second bulb count only when they can change."""
         groups = {"energy": slice(0, self.n_cells), "working_fluid": slice(self.i_mv, self.i_w)}
+        if self.body is not None:
+            return {"energy": groups["energy"], "working_fluid": np.r_[self.i_mv:self.i_w, self.i_mp],
+                    "cap_water": slice(self.i_w, self.i_w + 1), "pool_energy": slice(self.i_tb, self.i_tb + 1)}
         if self.spec.cap_water.mode == "charge":
             groups["cap_water"] = slice(self.i_w, self.i_w + 1)
         if self.spec.second_bulb.mode == "lumped":
@@ -205,6 +305,11 @@ class DeviceProblem:
         m[self.i_mv], dm[self.i_mv] = y[self.i_mv], 1.0
         m[self.i_c], dm[self.i_c] = self.inner_area * y[self.i_c], self.inner_area
         m[self.i_w], dm[self.i_w] = y[self.i_w], 1.0
+        if self.body is not None:  # the pool's energy, m_p c_l (T_p - T_ref)
+            cl = self.body.liquid_heat_capacity
+            m[self.i_tb], dm[self.i_tb] = y[self.i_mp] * cl * (y[self.i_tb] - REFERENCE_TEMPERATURE), y[self.i_mp] * cl
+            m[self.i_mp], dm[self.i_mp] = y[self.i_mp], 1.0
+            return m, dm
         cb = self.spec.second_bulb.heat_capacity
         m[self.i_tb], dm[self.i_tb] = cb * y[self.i_tb], cb
         return m, dm
@@ -249,17 +354,50 @@ class DeviceProblem:
         if self.spec.cap_water.mode == "charge":
             rate[self.i_w] = -evap_total
         bulb = self.spec.second_bulb
-        if bulb.mode == "lumped":
+        extras = {}
+        if self.body is not None:
+            extras = self._pool_rates(y, ev, rate)
+        elif bulb.mode == "lumped":
             rate[self.i_tb] = bulb.loss_conductance * (self.spec.room.air_temperature - y[self.i_tb]) + bulb.heater_power
         inflows = {"energy": ev.heat_in + float(sensible.sum()), "working_fluid": 0.0,
-                   "cap_water": float(rate[self.i_w]), "second_bulb_energy": float(rate[self.i_tb])}
+                   "cap_water": float(rate[self.i_w]), "second_bulb_energy": float(rate[self.i_tb]),
+                   "pool_energy": float(rate[self.i_tb])}
         grosses = {"energy": ev.gross_heat + float(np.abs(sensible).sum()),
-                   "working_fluid": float(np.abs(aj).sum()) + 1e-300,
+                   "working_fluid": float(np.abs(aj).sum()) + abs(extras.get("joint_flow", 0.0)) + 1e-300,
                    "cap_water": abs(evap_total) + 1e-300,
-                   "second_bulb_energy": abs(float(rate[self.i_tb])) + bulb.loss_conductance + 1e-300}
+                   "second_bulb_energy": abs(float(rate[self.i_tb])) + bulb.loss_conductance + 1e-300,
+                   "pool_energy": extras.get("pool_gross", 0.0) + 1e-300}
         return DeviceEvaluation(rate, ev, ctx, inflows, grosses, j, m_e, sensible,
                                 {"dj_dt": dj_dt, "dj_dp": dj_dp, "dj_dc": dj_dc, "dme_dt": dme_dt,
-                                 "dsensible": dsensible, "T": T})
+                                 "dsensible": dsensible, "T": T, **extras})
+
+    def joint_flow(self, y: np.ndarray) -> tuple[float, float, float]:
+        """Vapour flow from the pool into the head while tipped (kg/s) and its derivatives with
+        respect to m_v and T_p (zero while standing)."""
+        if not self.tipped:
+            return 0.0, 0.0, 0.0
+        fluid, k = self.spec.vapour.fluid, self.joint_conductance
+        t_p = float(y[self.i_tb])
+        p = self.pressures(y)
+        dp_dm = UNIVERSAL_GAS_CONSTANT * p["vapour_temperature_k"] / (fluid.molar_mass * self.spec.vapour.volume)
+        g = k * (float(fluid.saturation_pressure(t_p)) - p["head_vapour_pa"])
+        return g, -k * dp_dm, k * float(fluid.dsaturation_pressure_dT(t_p))
+
+    def _pool_rates(self, y: np.ndarray, ev, rate: np.ndarray) -> dict:
+        """The pool's rows: heat from its glass, the joined vapour spaces' flow."""
+        t_p = float(y[self.i_tb])
+        from_glass = -float(ev.boundary_heat[self.pool_faces].sum())
+        g, dg_dm, dg_dt = self.joint_flow(y)
+        cl = self.body.liquid_heat_capacity
+        leaving = cl * (t_p - REFERENCE_TEMPERATURE) + float(self.spec.vapour.fluid.latent_heat(t_p))
+        rate[self.i_mv] += g
+        rate[self.i_mp] = -g
+        rate[self.i_tb] = from_glass - g * leaving
+        return {"joint_flow": g, "dg_dm": dg_dm, "dg_dt": dg_dt, "leaving_enthalpy": leaving,
+                "pool_heat_from_glass": from_glass,
+                # the scale of the pool's exchange cannot vanish: at least what its glass would pass at 1 K
+                "pool_gross": float(np.abs(ev.boundary_heat[self.pool_faces]).sum()) + abs(g * leaving)
+                + self.pool_conductance}
 
     def jacobian(self, alpha0: float, dt: float, dm: np.ndarray, ev: DeviceEvaluation) -> LowRankUpdate:
         """J = alpha0 dm/dy - dt dF/dy; the weak dependences (transfer coefficients and the cap's
@@ -298,7 +436,7 @@ class DeviceProblem:
         # the vapour temperature (the wall cells' mean) sets p_v = m_v R T_v / V: a rank-one coupling
         # of every wall face to every wall cell
         p_v, t_v = ev.context["vapour"]["pressure"], ev.context["vapour"]["temperature"]
-        per_tv = 0.5 * p_v / t_v  # d(p_v / sqrt(T_v)) / dT_v at fixed m_v, in units of dp_v / sqrt(T_v)
+        per_tv = p_v / t_v  # dp_v / dT_v at fixed m_v (the flux sees T_v through p_v only)
         dts_dtv = lat * x["dj_dp"] * per_tv / (kap - g1)
         dJ_dtv = x["dj_dp"] * per_tv + x["dj_dt"] * dts_dtv
         # it is kept as the update u w^T (w: the wall cells' area weights), which fvsolver.linear
@@ -341,10 +479,39 @@ class DeviceProblem:
             lumped[self.i_w - n] = alpha0
         bulb = self.spec.second_bulb
         lumped[self.i_tb - n] = alpha0 * bulb.heat_capacity + (dt * bulb.loss_conductance if bulb.mode == "lumped" else 0.0)
-        # the lumped rows' diagonals that add() did not give (m_v, W, T_b), and the c diagonal above
         diag_rows = np.array([self.i_mv, self.i_w, self.i_tb])
+        if self.body is not None:
+            self._pool_jacobian(alpha0, dt, dm, ev, lumped, add)
+            diag_rows = np.array([self.i_mv, self.i_w, self.i_tb, self.i_mp])
+        # the lumped rows' diagonals that add() did not give (m_v, W, T_b, m_p), and the c diagonal above
         add(diag_rows, diag_rows, lumped[diag_rows - n])
         r, cl, v = np.concatenate(rows), np.concatenate(cols), np.concatenate(vals)
         extra = sp.coo_matrix((v, (r, cl)), shape=(self.n, self.n))
         full = sp.bmat([[jtt, None], [None, sp.csr_matrix((self.n - n, self.n - n))]], format="csr")
         return LowRankUpdate((full + extra.tocsr()).tocsr(), sp.csr_matrix(u[:, None]), sp.csr_matrix(w[:, None]))
+
+    def _pool_jacobian(self, alpha0, dt, dm, ev, lumped, add) -> None:
+        """The pool's entries: its contact with the glass (surface temperatures eliminated per face),
+        its energy's dependence on its mass, and the joined vapour spaces' flow."""
+        n, mesh, x, c = self.n_cells, self.mesh, ev.extras, ev.conduction
+        b = self.pool_faces
+        P = mesh.boundary_cell[b]
+        kap, g1 = c.surface_conductance[b], c.surface_derivative[b]
+        area = mesh.boundary_areas[b]
+        # heat into cell P: H = A kap (T_s - T_P), q(T_s) = h (T_p - T_s) = kap (T_s - T_P)
+        dh_dtp = area * kap * (-g1) / (kap - g1)        # dH/dT_pool (-g1 = h)
+        dh_dtcell = area * kap * g1 / (kap - g1)        # dH/dT_P, already in the conduction block
+        add(P, self.i_tb, -dt * dh_dtp)
+        add(self.i_tb, P, dt * dh_dtcell)               # the pool's rate is -sum H
+        t_p = ev.context["pool"]["temperature"]
+        cl = self.body.liquid_heat_capacity
+        g, dg_dm, dg_dt, e = x["joint_flow"], x["dg_dm"], x["dg_dt"], x["leaving_enthalpy"]
+        lumped[self.i_tb - n] = dm[self.i_tb] * alpha0 + dt * float(dh_dtp.sum()) + dt * (dg_dt * e + g * cl)
+        add(self.i_tb, self.i_mp, alpha0 * cl * (t_p - REFERENCE_TEMPERATURE))
+        add(self.i_tb, self.i_mv, dt * dg_dm * e)
+        lumped[self.i_mp - n] = alpha0
+        if g != 0.0 or dg_dm != 0.0:
+            add(self.i_mv, self.i_mv, -dt * dg_dm)
+            add(self.i_mv, self.i_tb, -dt * dg_dt)
+            add(self.i_mp, self.i_mv, dt * dg_dm)
+            add(self.i_mp, self.i_tb, dt * dg_dt)

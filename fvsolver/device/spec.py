@@ -122,6 +122,46 @@ class Safety:
 
 
 @dataclass(frozen=True)
+class Body:
+    """The body bulb of a whole device and its pool (see :mod:`fvsolver.device.body`).
+
+    pool: PoolGeometry (level, centre of mass); initial_pool_mass (kg); initial_temperature (K);
+    liquid_coefficient, vapour_coefficient (W/(m2 K), to the inner glass below / above the level);
+    liquid_heat_capacity (J/(kg K), held constant over a run); diameter (m, outer, for the room's
+    correlations); hot_air: ((patch, air temperature K, air speed m/s), ...); equalisation_time (s).
+    """
+
+    pool: object
+    initial_pool_mass: float
+    initial_temperature: float
+    liquid_coefficient: float
+    vapour_coefficient: float
+    liquid_heat_capacity: float
+    diameter: float
+    hot_air: tuple = ()
+    equalisation_time: float = 0.1
+
+
+@dataclass(frozen=True)
+class CycleSpec:
+    """How a whole device runs: tip (TipModel), stay tipped, stand up, settle.
+
+    tipped_time, refill_time (s); water_glass (bool) with water_temperature (K); period_tolerance (-),
+    settle_cycles, max_cycles; stop_when_settled.
+    """
+
+    tip: object
+    tipped_time: float
+    refill_time: float
+    water_glass: bool
+    water_temperature: float
+    period_tolerance: float
+    settle_cycles: int
+    max_cycles: int
+    stop_when_settled: bool
+
+
+@dataclass(frozen=True)
 class DeviceSpec:
     room: Room
     cap_water: CapWater
@@ -129,6 +169,8 @@ class DeviceSpec:
     second_bulb: SecondBulb
     target: Target
     safety: Safety
+    body: Body | None = None
+    cycle: CycleSpec | None = None
 
 
 def bulb_volume(inner_radius: float) -> float:

@@ -8,14 +8,19 @@ them through the evaluation ``context``:
   .. math:: q = h (T_a - T_s) + \\varepsilon\\sigma(T_{sur}^4 - T_s^4)
             - L_w(T_s)\\,\\phi\\,h_m(\\rho_{v,sat}(T_s) - \\rho_{v,\\infty})
 
-* inner wall (Hertz-Knudsen-Schrage condensation, positive when condensing):
+* inner wall (Hertz-Knudsen-Schrage condensation, positive when condensing), with the vapour
+  next to the interface at the interface's temperature (the vapour's bulk temperature T_v sets
+  only its pressure, p_v = m_v R T_v / (M V)):
 
-  .. math:: j = \\frac{2\\sigma}{2-\\sigma}\\sqrt{\\frac{M}{2\\pi R}}
-            \\left(\\frac{p_v}{\\sqrt{T_v}} - \\frac{p_{sat}(T_s)}{\\sqrt{T_s}}\\right),
+  .. math:: j = \\frac{2\\sigma}{2-\\sigma}\\sqrt{\\frac{M}{2\\pi R T_s}}
+            \\left(p_v - p_{sat}(T_s)\\right),
             \\qquad q = L(T_s)\\,j
 
-  A face re-evaporates only what it holds: an evaporating j is scaled by c+ / (c+ + c_ref),
-  with c its condensate inventory (kg/m2) and c+ a smooth positive part of c.
+  so a pure vapour in contact with a wet face at rest is at that face's saturation pressure
+  whatever the bulk temperature (Schrage 1953 with a film-side gas temperature; the usual
+  linearised interfacial form, as in ht.condensation.h_kinetic).  A face re-evaporates only what
+  it holds: an evaporating j is scaled by c+ / (c+ + c_ref), with c its condensate inventory
+  (kg/m2) and c+ a smooth positive part of c.
 """
 from __future__ import annotations
 
@@ -116,9 +121,11 @@ class CondensingWall:
         t = self._clip(T_s)
         ps = self.fluid.saturation_pressure(t)
         dps = self.fluid.dsaturation_pressure_dT(t)
-        raw = beta * (vap["pressure"] / np.sqrt(vap["temperature"]) - ps / np.sqrt(t))
-        draw_dt = -beta * (dps / np.sqrt(t) - 0.5 * ps * t**-1.5)
-        draw_dp = beta / np.sqrt(vap["temperature"])
+        root = np.sqrt(t)
+        excess = vap["pressure"] - ps
+        raw = beta * excess / root
+        draw_dt = -beta * (dps / root + 0.5 * excess / (t * root))
+        draw_dp = beta / root
         # the inventory limiter phi = c+ / (c+ + c_ref) with c+ = c_ref ln(1 + e^(c / c_ref)), a smooth
         # positive part: an evaporating face slows as it dries and stops just below zero.  j stays
         # monotone in T_s (only a kink where the face turns), which the surface solve needs.
@@ -152,20 +159,22 @@ class RoomSurface:
     """A dry outer surface in the room: convection with the room's coefficient, radiation and an
     optional imposed heat flux (a lamp, sunlight; W/m2 into the body).
 
-    ``context["room"]["h"]`` supplies the convection coefficient, W/(m2 K).
+    ``context[exchange]["h"]`` supplies the convection coefficient, W/(m2 K): ``"room"`` (the head's),
+    ``"body"`` (the body bulb's) or a warm air stream's entry.
     """
 
     air_temperature: float
     emissivity: float
     surroundings_temperature: float
     extra_flux: float = 0.0
+    exchange: str = "room"
     coupled = True
 
     def validate(self, where: str) -> None:
         return None
 
     def heat_flux(self, T_s, time, centres, faces, context):
-        h = context["room"]["h"]
+        h = context[self.exchange]["h"]
         es = self.emissivity * STEFAN_BOLTZMANN
         q = h * (self.air_temperature - T_s) + es * (self.surroundings_temperature**4 - T_s**4) + self.extra_flux
         return q, -h - 4.0 * es * T_s**3

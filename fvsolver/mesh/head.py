@@ -18,6 +18,7 @@ rims (and at the neck joint) with ``rim_grading``.
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -292,12 +293,61 @@ def device_head(
         ``"inner_wall"``, ``"bore"``, ``"glass_outer"``, ``"cap_outer"``, ``"cap_edge"``,
         ``"neck_outer"``, ``"neck_end"``.
     """
+    head = _head_blocks(bulb_inner_radius, glass_thickness, cap_thickness, cap_polar_range, neck_inner_radius,
+                        neck_outer_radius, n_glass, n_cap, n_polar, n_neck_wall, glass_grading, cap_grading,
+                        rim_grading)
+    length = check_length("neck_length", neck_length)
+    a, b, ro = head.neck_inner_radius, head.neck_outer_radius, head.outer_radius
+    shortest = math.sqrt(ro * ro - a * a) - math.sqrt(ro * ro - b * b)
+    if not length > shortest:
+        raise MeshError(
+            f"neck_length: got {length!r} m, expected more than {shortest:.6e} m (the bulb's "
+            "outer sphere spans that height across the neck wall); lengthen the neck"
+        )
+    n_neck = check_count("n_neck", n_neck)
+    ng = check_ratio("neck_grading", neck_grading)
+    z_end = neck_end_z(head.inner_radius, ro - head.inner_radius, b, length)
+    tube = tube_block(head.r_wall, head.collar_bottom, np.full_like(head.r_wall, z_end), n_neck, ng,
+                      {"i_min": "bore", "i_max": "neck_outer", "j_max": "neck_end"})
+    return from_blocks([head.shell, head.collar, tube, head.cap], "axisymmetric")
+
+
+@dataclass(frozen=True)
+class HeadBlocks:
+    """The head's glass shell, its collar round the neck's bore, and the cap, with the
+    dimensions a tube below needs (``collar_bottom``: z of the outer sphere at ``r_wall``)."""
+
+    shell: Block
+    collar: Block
+    cap: Block
+    inner_radius: float
+    outer_radius: float
+    neck_inner_radius: float
+    neck_outer_radius: float
+    r_wall: np.ndarray
+    collar_bottom: np.ndarray
+
+
+def tube_block(r_wall: np.ndarray, z_top: np.ndarray, z_bottom: np.ndarray, n_cells: int, grading: float,
+               patches: dict) -> Block:
+    """A straight glass tube wall between two node lines: ``r_wall`` (n_wall + 1,) across the
+    wall, from ``z_top`` down to ``z_bottom`` (each (n_wall + 1,)) in ``n_cells`` graded cells
+    (last over first cell size ``grading``)."""
+    u = graded_points(0.0, 1.0, n_cells, grading)
+    z = z_top[:, None] + (z_bottom - z_top)[:, None] * u[None, :]
+    z[:, 0], z[:, -1] = z_top, z_bottom
+    nodes = np.stack([np.broadcast_to(r_wall[:, None], z.shape), z], axis=-1)
+    return Block(nodes, GLASS, patches)
+
+
+def _head_blocks(bulb_inner_radius, glass_thickness, cap_thickness, cap_polar_range, neck_inner_radius,
+                 neck_outer_radius, n_glass, n_cap, n_polar, n_neck_wall, glass_grading, cap_grading,
+                 rim_grading) -> HeadBlocks:
     ri = check_length("bulb_inner_radius", bulb_inner_radius)
     tg = check_length("glass_thickness", glass_thickness)
     tc = check_length("cap_thickness", cap_thickness)
     a = check_length("neck_inner_radius", neck_inner_radius)
     b = check_length("neck_outer_radius", neck_outer_radius)
-    length = check_length("neck_length", neck_length)
     if not a < b < ri:
         raise MeshError(
             f"neck_inner_radius, neck_outer_radius: got a = {a!r} m, b = {b!r} m with bulb "
@@ -306,17 +356,11 @@ def device_head(
     ro = ri + tg
     end_outer = float(np.pi - np.arcsin(b / ro))
     theta0, theta1 = _cap_range(cap_polar_range, end_outer, "where the outer sphere meets the neck")
-    shortest = math.sqrt(ro * ro - a * a) - math.sqrt(ro * ro - b * b)
-    if not length > shortest:
-        raise MeshError(
-            f"neck_length: got {length!r} m, expected more than {shortest:.6e} m (the bulb's "
-            "outer sphere spans that height across the neck wall); lengthen the neck"
-        )
     n_glass, n_cap = check_count("n_glass", n_glass), check_count("n_cap", n_cap)
-    n_polar, n_neck = check_count("n_polar", n_polar), check_count("n_neck", n_neck)
+    n_polar = check_count("n_polar", n_polar)
     n_wall = n_glass if n_neck_wall is None else check_count("n_neck_wall", n_neck_wall)
     gg, cg = check_ratio("glass_grading", glass_grading), check_ratio("cap_grading", cap_grading)
-    rim, ng = check_ratio("rim_grading", rim_grading), check_ratio("neck_grading", neck_grading)
+    rim = check_ratio("rim_grading", rim_grading)
 
     # polar parameter s in [0, 1]; on the outer sphere theta = end_outer * s
     breaks = np.array([0.0, theta0, theta1, end_outer]) / end_outer
@@ -345,14 +389,6 @@ def device_head(
     collar_nodes = np.stack([np.broadcast_to(r_wall[:, None], collar_z.shape), collar_z], axis=-1)
     collar = Block(collar_nodes, GLASS, {"i_min": "bore", "j_min": "inner_wall"})
 
-    z_end = neck_end_z(ri, tg, b, length)
-    top = collar_z[:, -1]  # (n_wall + 1,), the outer sphere at r_wall
-    u = graded_points(0.0, 1.0, n_neck, ng)
-    tube_z = top[:, None] + (z_end - top)[:, None] * u[None, :]
-    tube_z[:, -1] = z_end
-    tube_nodes = np.stack([np.broadcast_to(r_wall[:, None], tube_z.shape), tube_z], axis=-1)
-    tube = Block(tube_nodes, GLASS, {"i_min": "bore", "i_max": "neck_outer", "j_max": "neck_end"})
-
     cap_theta = end_outer * s[j0 : j1 + 1]
     cap = _cap_block(_layer(ro, tc, n_cap, cg), cap_theta, theta0)
-    return from_blocks([shell, collar, tube, cap], "axisymmetric")
+    return HeadBlocks(shell, collar, cap, ri, ro, a, b, r_wall, collar_z[:, -1].copy())

@@ -419,6 +419,8 @@ def write_report(
     summary = summary or {}
     title = (case_title or "").strip() or "Untitled case"
     lines = [f"# {title}", "", "## Result", "", result_paragraph(summary) or "The summary is empty.", ""]
+    if summary.get("outcome"):
+        lines += ["## The running device", "", *cycle_section(summary), ""]
     if scenario:
         lines[1:1] = ["", f"*Computed for: {scenario}*"]
     uncertainty = uncertainty_paragraph(summary)
@@ -436,3 +438,41 @@ def write_report(
     path = folder / REPORT_NAME
     atomic_write_text(path, "\n".join(lines))
     return path
+
+
+CYCLE_ROWS = (
+    ("outcome", "outcome", "", None),
+    ("first_tip_s", "first tip", "s", 4),
+    ("period_s", "period (settled)", "s", 4),
+    ("last_period_s", "last period", "s", 4),
+    ("n_cycles", "tips", "", None),
+    ("dips_per_hour", "dips per hour", "1/h", 4),
+    ("water_per_dip_kg", "water evaporated per dip", "kg", 3),
+    ("water_per_day_kg", "water per day", "kg", 3),
+    ("evaporative_cooling_w", "evaporative cooling (cycle mean)", "W", 3),
+    ("dip_heat_into_head_j", "heat a dip puts into the head", "J", 3),
+    ("lift_work_per_dip_j", "lift work per dip", "J", 3),
+    ("mechanical_power_w", "mechanical power", "W", 3),
+    ("carnot_fraction", "fraction of the Carnot limit (body to head)", "", 3),
+    ("head_body_temperature_difference_k", "pool minus head temperature (cycle mean)", "K", 3),
+    ("column_at_tip_m", "column at the tip", "m", 4),
+)
+
+
+def cycle_section(summary: dict) -> list[str]:
+    """A whole device's cycle in plain words and a table (the summary's cycle keys)."""
+    lines = [f"Outcome: **{summary['outcome'].replace('_', ' ')}** - {summary.get('outcome_reason') or ''}", "",
+             "| quantity | value | unit |", "|---|---:|---|"]
+    for key, label, unit, digits in CYCLE_ROWS:
+        value = summary.get(key)
+        if value is None:
+            text = "not reached" if key in ("period_s", "first_tip_s") else "-"
+        elif digits is None or isinstance(value, str):
+            text = str(value).replace("_", " ")
+        else:
+            text = f"{value:.{digits}g}"
+        lines.append(f"| {label} | {text} | {unit} |")
+    lines += ["", "The tip is decided by statics: the device tips when its centre of mass rises to the pivot "
+              "(tilt and swinging are not modelled). The column follows the pressure difference "
+              "quasi-statically. Per-cycle rows are in cycles.csv."]
+    return lines
