@@ -683,6 +683,7 @@ def envelope_plot(temperatures: np.ndarray, humidities: np.ndarray, values: np.n
               ncol=min(4, len(kinds)), frameon=False)
     if title:
         ax.set_title(title, fontsize=10)
+    _save(fig, path)
 
 
 def cycle_plot(history: Mapping[str, np.ndarray], cycles: Sequence[Mapping], path: Path, title: str = "") -> None:
