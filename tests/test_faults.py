@@ -25,20 +25,9 @@ import fvsolver
 from fvsolver import checkpoint
 from fvsolver.errors import CaseError
 from fvsolver.pipeline import run
+from tests.test_resume import StopAfter
 
 ROOT = Path(__file__).resolve().parents[1]
-
-
-class StopAfter:
-    """A progress callback that interrupts the run after ``n`` steps, as Ctrl-C would."""
-
-    def __init__(self, n: int):
-        self.n = n
-
-    def __call__(self, stepper, monitor):
-        if stepper.counters.steps >= self.n:
-            raise KeyboardInterrupt
-
 
 def fast(folder: Path, name: str) -> Path:
     """A shipped case with the demo's earlier, coarser settings (4 cap cells, tolerance 0.02 K):
