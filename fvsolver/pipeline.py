@@ -419,7 +419,7 @@ def _write_plots_and_report(folder: Path, case, setup, summary, history, fields,
     if cycles:
         from fvsolver.plotting import cycle_plot
 
-        cycle_plot(history, cycles, folder / "cycles.png", title=plain_title(case["title"]))
+        cycle_plot(history, cycles, folder / "cycles.png", title=plain_title(case["title"]), subtitle=scenario)
         plots.append("cycles.png")
     write_report(folder, summary, plain_title(case["title"] or (case.path.stem if case.path else "case")),
                  _inputs(case), plots, scenario=scenario)
