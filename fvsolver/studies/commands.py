@@ -88,7 +88,7 @@ def add_commands(sub, epilog: str) -> None:
             s.add_argument("--levels", type=int, default=3, help="refinement levels per study, 3 or more (default 3)")
             s.add_argument("--ratio", type=float, default=1.5,
                            help="refinement ratio of every cell count per level (default 1.5; the tolerance "
-                                "falls by its square)")
+                                "falls by its cube, so the steps shorten by it)")
             s.add_argument("--study", action="append", choices=("both", "mesh", "time"), default=None,
                            help="run only these studies (repeat; default all three)")
             s.add_argument("--result", action="append", default=None, metavar="KEY",
