@@ -478,7 +478,7 @@ def cycle_section(summary: dict) -> list[str]:
               "",
               "Numerical uncertainty: not estimated for this run (a cycle run has no cheap companion runs). "
               "The mesh's cells through the cap matter most: on the running-device demo, 3 cells through the "
-              "felt put the first tip 1.6 % early against 16 cells, 8 cells 0.2 %. Estimate it for this "
+              "felt put the first tip 2.0 % early against 16 cells, 8 cells 0.2 %. Estimate it for this "
               "design with `fvsolver converge CASE --result period_s` (observed order, extrapolated value and "
               "GCI)."]
     return lines
