@@ -35,6 +35,9 @@ RESULT_COLUMNS = ("status", "target_reached", "time_to_target_s", "target_pressu
                   "max_pressure_drop_pa", "stall_reason", "min_temperature_k", "max_temperature_k",
                   "max_internal_pressure_pa", "max_glass_temperature_k", "warnings",
                   "energy_balance_relative_error", "n_steps")
+# and, for a whole running device, its cycle
+CYCLE_COLUMNS = ("outcome", "first_tip_s", "period_s", "last_period_s", "n_cycles", "dips_per_hour",
+                 "water_per_day_kg", "outcome_reason")
 
 
 @dataclass(frozen=True)
@@ -251,7 +254,8 @@ def sweep(case: Case, varies: list[Vary], out: str | Path | None = None, overwri
 
     A run that fails (a solver failure, a property outside its data) is a row with status
     "failed" and the error in ``reason``; the sweep goes on. Rows carry the varied values, the
-    summary entries of RESULT_COLUMNS, the wall time and the run's folder.
+    summary entries of RESULT_COLUMNS (and CYCLE_COLUMNS for a whole device), the wall time and the
+    run's folder.
     """
     from fvsolver.pipeline import prepare_output
 
@@ -261,12 +265,15 @@ def sweep(case: Case, varies: list[Vary], out: str | Path | None = None, overwri
     grid = variants(case, varies)  # every combination is checked before anything is written
     folder = prepare_output(Path(out), overwrite) if out is not None else None
     done: dict[int, dict] = {}
+    cycle_columns = case["geometry"]["shape"] == "whole_device"
 
     def record(index: int, result: tuple) -> None:
         summary, reason, seconds = result
         changes = grid[index][0]
         row = {"run": index, **changes}
         row.update({k: summary.get(k) for k in RESULT_COLUMNS})
+        if cycle_columns:
+            row.update({k: summary.get(k) for k in CYCLE_COLUMNS})
         row["warnings"] = "; ".join(row["warnings"] or []) or None
         row["reason"] = reason or summary.get("reason")
         row["wall_time_s"] = round(seconds, 3)

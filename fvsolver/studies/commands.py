@@ -54,6 +54,11 @@ def progress_printer(say, engine, jobs: int, describe):
         running = min(engine.running(), left) if engine is not None else min(jobs, left)
         if row["status"] != "complete":
             result = f"{row['status']}: {row['reason']}"
+        elif row.get("outcome"):  # a running device
+            period = row.get("period_s") or row.get("last_period_s")
+            result = row["outcome"].replace("_", " ") + (f", period {period:.3g} s" if period else "")
+            if row["outcome"] == "running" and not row.get("period_s"):
+                result += " (not settled)" if period else ""
         elif row["target_reached"] is None:
             result = "complete"
         elif row["target_reached"]:

@@ -102,8 +102,12 @@ def build_envelope(rows: Sequence[Mapping], temperatures: Sequence[float], humid
         i, j = divmod(k, n_h)
         summary = _summary_of(folder, row)
         v = hl.value(summary, result)
-        values[i, j] = np.nan if v is None else v
         outcomes[i, j] = hl.outcome(row if row.get("status") != "complete" else summary)
+        if v is None and result == "period_s" and outcomes[i, j] == "running" and summary.get("last_period_s"):
+            # still tipping at the end, its period not yet settled: mapped by its last period, marked
+            v = hl.value(summary, "last_period_s")
+            outcomes[i, j] = "running, not settled"
+        values[i, j] = np.nan if v is None else v
         room = summary.get("room") or {}
         table.append({"run": row["run"], "air_temperature_k": float(temperatures[i]),
                       "air_temperature_c": round(float(temperatures[i]) - 273.15, 6),

@@ -49,6 +49,16 @@ def test_the_map_knows_where_the_device_runs():
     assert [r["runs"] for r in env.rows] == [True, True, False, True, False, False]
 
 
+def test_a_running_device_still_tipping_but_not_settled_is_mapped_by_its_last_period():
+    rows = [{**_row(k, True, 20.0), "outcome": outcome, "period_s": period, "last_period_s": last}
+            for k, (outcome, period, last) in enumerate([("running", 5.3, 5.3), ("running", None, 9.5),
+                                                          ("never_tips", None, None), ("stopped", None, 40.0)])]
+    env = build_envelope(rows, (290.15, 300.15), (0.3, 0.9), "period_s")
+    assert env.values[0, 0] == 5.3 and env.values[0, 1] == 9.5
+    assert env.outcomes[0, 1] == "running, not settled" and env.outcomes[1, 0] == "never_tips"
+    assert env.runs.tolist() == [[True, True], [False, False]]
+
+
 def test_humidity_spans_of_consecutive_points():
     h = np.array([0.2, 0.4, 0.6, 0.8])
     assert _spans(h, np.array([True, True, False, True])) == [(0.2, 0.4), (0.8, 0.8)]
