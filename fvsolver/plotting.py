@@ -564,8 +564,10 @@ def _with_unit(key: str, units: Mapping | None) -> str:
 
 
 def sweep_plot(rows: Sequence[Mapping], keys: Sequence[str], path: Path, title: str = "",
-               units: Mapping[str, str] | None = None) -> None:
-    """Time to target against the first swept key, one line per combination of the others.
+               units: Mapping[str, str] | None = None, result: str = "time_to_target_s",
+               result_label: str = "time to target (s)", missing_label: str = "not reached") -> None:
+    """Time to target (or ``result``, e.g. a running device's last period) against the first
+    swept key, one line per combination of the others.
 
     Runs that did not reach the target are drawn as open markers on the top edge of the panel
     (labelled "not reached"), so a stalled climate stands out instead of vanishing.
@@ -581,14 +583,14 @@ def sweep_plot(rows: Sequence[Mapping], keys: Sequence[str], path: Path, title: 
     groups: dict[tuple, list[Mapping]] = {}
     for r in rows:
         groups.setdefault(tuple(r[k] for k in others), []).append(r)
-    reached = [r["time_to_target_s"] for r in rows if r["time_to_target_s"] is not None]
+    reached = [r.get(result) for r in rows if r.get(result) is not None]
     top = 1.08 * max(reached) if reached else 1.0
     fig, ax = plt.subplots(figsize=(7.0, 4.2), layout="constrained")
     ax.grid(True, lw=0.4, alpha=0.45)
     for label, members in groups.items():
         members = sorted(members, key=lambda r: r[first])
         x = np.array([float(r[first]) for r in members])
-        y = np.array([np.nan if r["time_to_target_s"] is None else float(r["time_to_target_s"]) for r in members])
+        y = np.array([np.nan if r.get(result) is None else float(r.get(result)) for r in members])
         name = ", ".join(f"{k.split('.')[-1]} = {v:g}" + (f" {units[k]}" if units and units.get(k) else "")
                          if isinstance(v, int | float) else f"{k.split('.')[-1]} = {v}"
                          for k, v in zip(others, label)) or None
@@ -599,11 +601,11 @@ def sweep_plot(rows: Sequence[Mapping], keys: Sequence[str], path: Path, title: 
                     mec=line.get_color())
     if len(reached) < len(rows):
         ax.axhline(top, color="0.5", lw=0.6, ls=":")
-        ax.annotate("not reached", (0.01, top), xycoords=("axes fraction", "data"), va="bottom",
+        ax.annotate(missing_label, (0.01, top), xycoords=("axes fraction", "data"), va="bottom",
                     fontsize=7.5, color="0.35")
     ax.set_ylim(0.0, 1.12 * top)
     ax.set_xlabel(_with_unit(first, units))
-    ax.set_ylabel("time to target (s)")
+    ax.set_ylabel(result_label)
     if title:
         ax.set_title(title, fontsize=9.5)
     if others:

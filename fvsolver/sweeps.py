@@ -318,9 +318,13 @@ def sweep(case: Case, varies: list[Vary], out: str | Path | None = None, overwri
         name = case.path.name if case.path else "a case"
         plot = None
         units = {v.path: key_unit(v.path) for v in varies}
-        if any(r["time_to_target_s"] is not None for r in rows) and isinstance(varies[0].values[0], int | float):
+        # a running device is drawn by its last period (settled or not), a head by its time to target
+        result, label = (("last_period_s", "period of the last cycle (s)") if cycle_columns
+                         else ("time_to_target_s", "time to target (s)"))
+        if any(r.get(result) is not None for r in rows) and isinstance(varies[0].values[0], int | float):
             sweep_plot(rows, [v.path for v in varies], folder / "sweep.png",
-                       title=f"sweep of {name} (other inputs as in the case)", units=units)
+                       title=f"sweep of {name} (other inputs as in the case)", units=units, result=result,
+                       result_label=label, missing_label="fewer than two tips" if cycle_columns else "not reached")
             plot = "sweep.png"
         write_sweep_report(folder, f"Sweep of {name}", [v.path for v in varies], rows, plot, units=units)
         info = {"case_file": str(case.path) if case.path else None, "case_sha256": case.sha256,

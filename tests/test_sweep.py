@@ -96,6 +96,7 @@ def test_a_running_device_sweep_tabulates_its_cycle(tmp_path):
     assert rows[0]["last_period_s"] < rows[1]["last_period_s"]
     table = list(csv.DictReader((tmp_path / "sw" / "sweep.csv").open()))
     assert {"outcome", "first_tip_s", "period_s", "dips_per_hour", "water_per_day_kg"} <= set(table[0])
+    assert (tmp_path / "sw" / "sweep.png").stat().st_size > 10_000  # the last period against the humidity
 
 
 def test_sweep_command_line(tmp_path, capsys):
