@@ -53,6 +53,9 @@ class StepperOptions:
     min_step, max_step : float, s
     max_growth : float, largest ratio of successive steps (BDF2 stays zero-stable below 2.4)
     newton_tolerance : float, absolute change of the unknowns that ends the Newton loop
+    newton_fraction : float, adaptive steps: the Newton loop also ends once its estimated remaining
+        error (the last update times rho / (1 - rho), rho its observed contraction) is below this
+        fraction of the step's error tolerance on every unknown
     max_newton_iterations : int
     """
 
@@ -65,6 +68,7 @@ class StepperOptions:
     max_step: float = math.inf
     max_growth: float = 2.0
     newton_tolerance: float = 1e-9
+    newton_fraction: float = 1e-2
     max_newton_iterations: int = 30
 
     def validate(self, where: str = "numerics") -> None:
@@ -294,7 +298,16 @@ class TimeStepper:
         if not use_bdf2:
             return 1, 1.0, -1.0, 0.0
         w = dt / self._dts[0]
-        return 2, (1 + 2 * w) / (1 + w), -(1 + w), w * w / (1 + w)
+        a0, a1, a2 = (1 + 2 * w) / (1 + w), -(1 + w), w * w / (1 + w)
+        keep = getattr(self.problem, "nonnegative", None)
+        if keep is not None and len(keep):
+            # BDF2's history part -(a1 m_n + a2 m_n-1) / a0 of an unknown that must stay >= 0 (an
+            # inventory drying out) can itself be negative: no solution >= 0 exists then, and the
+            # step is taken first-order (backward Euler keeps it >= 0)
+            h = self._history
+            if np.any(a1 * h.m[0][keep] + a2 * h.m[1][keep] > 0.0):
+                return 1, 1.0, -1.0, 0.0
+        return 2, a0, a1, a2
 
     def _predict(self, dt: float, order: int):
         """Extrapolated state and the factor turning |corrector - predictor| into the error."""
@@ -350,9 +363,17 @@ class TimeStepper:
         t_new = self.t + dt
         hist = a1 * h.m[0] + (a2 * h.m[1] if a2 else 0.0)
         y_pred, est_factor = self._predict(dt, order) if opt.adaptive else (h.y[0], 0.0)
-        # Newton starts from the last accepted state: with stiff, sharply switching unknowns
-        # (a wall face turning dry) that is safer than the extrapolated predictor
-        y = h.y[0].copy()
+        project = getattr(p, "project", None)  # keeps iterates inside the unknowns' domain
+        # Newton starts from the extrapolated predictor (projected into the domain): its first
+        # update is then of the size of the step's error instead of the step's change
+        y = y_pred.copy() if opt.adaptive and self._newton_from_predictor(order) else h.y[0].copy()
+        if project is not None:
+            project(y)
+        # the Newton loop ends once the error left is a small fraction of the step's own tolerance
+        # (adaptive steps), or below the absolute newton_tolerance
+        weight = None
+        if opt.adaptive:
+            weight = 1.0 / (opt.newton_fraction * (opt.tolerance * self._scale + opt.relative_tolerance * np.abs(h.y[0])))
         lu = None
         norms = []
         prev_norm = math.inf
@@ -368,7 +389,13 @@ class TimeStepper:
             self.counters.newton_iterations += 1
             if not np.all(np.isfinite(delta)):
                 return None
-            y += delta
+            if project is not None:
+                before = y.copy()
+                y += delta
+                project(y)
+                delta = y - before  # the change actually made
+            else:
+                y += delta
             norm = float(np.max(np.abs(delta) / self._scale))
             rate_poor = norm > 0.3 * prev_norm
             prev_before, prev_norm = prev_norm, norm
@@ -386,6 +413,11 @@ class TimeStepper:
             if norm <= opt.newton_tolerance or (norm <= 1e3 * opt.newton_tolerance and norm > 0.5 * prev_before):
                 converged = True
                 break
+            if weight is not None and it >= 1:
+                contraction = norm / prev_before
+                if contraction < 0.5 and float(np.max(np.abs(delta) * weight)) * contraction / (1.0 - contraction) <= 1.0:
+                    converged = True
+                    break
         if not converged:
             return None
         if p.exact_jacobian:
@@ -412,6 +444,9 @@ class TimeStepper:
             est = est_factor * np.abs(y - y_pred)
             err = float(np.max(est / (opt.tolerance * self._scale + opt.relative_tolerance * np.abs(y))))
         return y, m_new, err, ev, order, w_new, a0
+
+    def _newton_from_predictor(self, order: int) -> bool:
+        return getattr(self.problem, "newton_from_predictor", False)
 
     def _affine_step(self, op, dt, order, a0, a1, a2):
         """A step of F(T) = A T + f0: one residual update and one solve, nothing re-evaluated."""

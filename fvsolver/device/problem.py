@@ -36,6 +36,7 @@ from fvsolver.device.body import PoolContact
 from fvsolver.device.spec import GRAVITY, DeviceSpec
 from fvsolver.materials import REFERENCE_TEMPERATURE
 from fvsolver.device.surfaces import CondensingWall, EvaporativeCap, RoomSurface
+from fvsolver.kernels import surfaces as ks
 from fvsolver.linear import LowRankUpdate
 from fvsolver.properties import convection, moist_air, porous
 from fvsolver.properties.fluids import UNIVERSAL_GAS_CONSTANT
@@ -185,6 +186,19 @@ class DeviceProblem:
         if self.body is not None:
             scale[self.i_mp] = 1e-3 * self.body.initial_pool_mass
         return scale
+
+    def project(self, y: np.ndarray) -> None:
+        """Put a Newton iterate back into the unknowns' domain, in place: no inventory below zero.
+        (On a drying face the step's equation c + a phi(c) = c_old is concave in c: Newton's
+        iterates from below zero then climb to the root without overshooting it.)"""
+        c = y[self.i_c]
+        np.maximum(c, 0.0, out=c)
+        y[self.i_c] = c
+
+    @property
+    def nonnegative(self) -> np.ndarray:
+        """Unknowns that never go below zero (their content is a positive multiple of them)."""
+        return self.i_c
 
     def vapour_mass(self, y: np.ndarray) -> float:
         """Working-fluid vapour in the head, kg."""
@@ -341,8 +355,14 @@ class DeviceProblem:
         ctx = self.context(y)
         ev = self.conduction.evaluate(T, time, ctx)
         t_s = ev.surface_temperature
-        j, dj_dt, dj_dp, dj_dc = self.wall_term.mass_flux(t_s[self.inner], self.inner, ctx)
-        m_e, dme_dt = self.cap_term.mass_flux(t_s[self.cap_faces], ctx)
+        terms = ev.surface_terms
+        if terms is not None:  # the compiled surface solve's mass fluxes at its surface temperatures
+            wall, cap = terms[self.inner], terms[self.cap_faces]
+            j, dj_dt, dj_dp, dj_dc = wall[:, ks.M], wall[:, ks.DM], wall[:, ks.DM_DP], wall[:, ks.DM_DC]
+            m_e, dme_dt = cap[:, ks.M], cap[:, ks.DM]
+        else:
+            j, dj_dt, dj_dp, dj_dc = self.wall_term.mass_flux(t_s[self.inner], self.inner, ctx)
+            m_e, dme_dt = self.cap_term.mass_flux(t_s[self.cap_faces], ctx)
         area_cap = mesh.boundary_areas[self.cap_faces]
         evap_total = float(np.dot(area_cap, m_e))
         sensible, dsensible = self._water_sensible(T, evap_total, ctx)
@@ -418,7 +438,8 @@ class DeviceProblem:
         kap, g1 = c.surface_conductance[b], c.surface_derivative[b]
         area = self.inner_area
         tau = kap / (kap - g1)
-        lat = self.wall_term.latent_heat(c.surface_temperature[b])
+        terms = c.surface_terms
+        lat = terms[b, ks.LATENT] if terms is not None else self.wall_term.latent_heat(c.surface_temperature[b])
         vap = self.spec.vapour
         dp_dm = UNIVERSAL_GAS_CONSTANT * ev.context["vapour"]["temperature"] / (vap.fluid.molar_mass * vap.volume)
         dts_dp = lat * x["dj_dp"] / (kap - g1)
