@@ -56,6 +56,8 @@ class StepperOptions:
     newton_fraction : float, adaptive steps: the Newton loop also ends once its estimated remaining
         error (the last update times rho / (1 - rho), rho its observed contraction) is below this
         fraction of the step's error tolerance on every unknown
+    balance_tolerance : float, the Newton loop ends only once every conserved total balances over
+        the step to this relative error (non-affine problems)
     max_newton_iterations : int
     """
 
@@ -69,6 +71,7 @@ class StepperOptions:
     max_growth: float = 2.0
     newton_tolerance: float = 1e-9
     newton_fraction: float = 1e-2
+    balance_tolerance: float = 1e-10
     max_newton_iterations: int = 30
 
     def validate(self, where: str = "numerics") -> None:
@@ -328,13 +331,15 @@ class TimeStepper:
         y2 = h.y[2]
         t = h.t[0] + h0
         ts = (h.t[0], h.t[1], h.t[2])
-        pred = np.zeros_like(y0)
-        for i, yi in enumerate((y0, y1, y2)):
+        # y0 + sum l_i (y_i - y0) (the weights sum to one): an unknown that has not changed is
+        # extrapolated exactly, without a rounding Newton would then have to undo
+        pred = y0.copy()
+        for i, yi in enumerate((y1, y2), start=1):
             li = 1.0
             for j in range(3):
                 if j != i:
                     li *= (t - ts[j]) / (ts[i] - ts[j])
-            pred += li * yi
+            pred += li * (yi - y0)
         delta = h0**2 * (h0 + h1) ** 2 / (6 * (2 * h0 + h1))
         ep = h0 * (h0 + h1) * (h0 + h1 + h2) / 6
         return pred, delta / (delta + ep)
@@ -378,11 +383,27 @@ class TimeStepper:
         norms = []
         prev_norm = math.inf
         converged = False
-        for it in range(opt.max_newton_iterations):
-            ev = p.evaluate(y, t_new)
-            self.counters.evaluations += 1
-            m, dm = p.capacity(y)
+        settled = False  # the last update passed the Newton test; the balance is checked at its state
+        last_worst = math.inf
+        errors = {}
+        ev = p.evaluate(y, t_new)
+        self.counters.evaluations += 1
+        m, dm = p.capacity(y)
+        for it in range(opt.max_newton_iterations + 1):
             residual = a0 * m + hist - dt * ev.rate
+            if settled:
+                # the conserved totals must balance to round-off at the state the step ends on: the
+                # evaluation there is the one the next iteration would start from, so an iteration
+                # more costs only a solve with the kept factor and the next evaluation
+                w_new, errors = self._balance(m, ev, dt, a0, a2)
+                worst = max(errors.values(), default=0.0)
+                # (or it has stopped falling while the updates are at round-off: the totals' own floor)
+                if worst <= opt.balance_tolerance or (worst > 0.5 * last_worst and norm <= opt.newton_tolerance):
+                    converged = True
+                    break
+                last_worst = worst
+            if it == opt.max_newton_iterations:
+                break
             if lu is None or not p.constant_jacobian and it > 0 and rate_poor:
                 lu = self._lu(a0, dt, dm, ev, p.constant_jacobian)
             delta = solve(lu, -residual)
@@ -410,40 +431,45 @@ class TimeStepper:
             if it >= 4 and norm > 0.5 * norms[-4] and norm > 1e3 * opt.newton_tolerance:
                 return None  # not even halving over three iterations (cycling): a shorter step
             # converged; or stalled at the round-off floor of the evaluation just above the tolerance
-            if norm <= opt.newton_tolerance or (norm <= 1e3 * opt.newton_tolerance and norm > 0.5 * prev_before):
-                converged = True
-                break
-            if weight is not None and it >= 1:
+            settled = norm <= opt.newton_tolerance or (norm <= 1e3 * opt.newton_tolerance and norm > 0.5 * prev_before)
+            if weight is not None and it >= 1 and not settled:
                 contraction = norm / prev_before
-                if contraction < 0.5 and float(np.max(np.abs(delta) * weight)) * contraction / (1.0 - contraction) <= 1.0:
-                    converged = True
-                    break
+                settled = (contraction < 0.5 and
+                           float(np.max(np.abs(delta) * weight)) * contraction / (1.0 - contraction) <= 1.0)
+            if not np.all(np.isfinite(y)):
+                return None
+            ev = p.evaluate(y, t_new)
+            self.counters.evaluations += 1
+            m, dm = p.capacity(y)
         if not converged:
             return None
         if p.exact_jacobian:
-            m_new = m
             inflow = self._affine_inflow(ev, delta)
-        else:
-            ev = p.evaluate(y, t_new)
-            self.counters.evaluations += 1
-            m_new, _ = p.capacity(y)
+            w_new, errors = self._balance(m, ev, dt, a0, a2, inflow)
+        m_new = m
+        self.balance_error.update(errors)
+        err = 0.0
+        if opt.adaptive:
+            est = est_factor * np.abs(y - y_pred)
+            err = float(np.max(est / (opt.tolerance * self._scale + opt.relative_tolerance * np.abs(y))))
+        return y, m_new, err, ev, order, w_new, a0
+
+    def _balance(self, m_new, ev, dt, a0, a2, inflow=None):
+        """Each conserved total's inflow over the step by the scheme's quadrature, and the relative
+        difference between it and the total's change (the balance error)."""
+        h = self._history
+        if inflow is None:
             inflow = {g: ev.inflow(g) for g in self._groups}
             self._gross = {g: ev.gross(g) for g in self._groups}
-        if not np.all(np.isfinite(y)):
-            return None
-        w_new = {}
+        w_new, errors = {}, {}
         for g, sl in self._groups.items():
             w_new[g] = (dt * inflow[g] + a2 * self._inflow[g]) / a0
             stored = float((m_new[sl] - h.m[0][sl]).sum())  # differences first: no cancellation of totals
             # relative to the change, the gross exchange, or the round-off level of the total itself
             scale = max(abs(stored), dt * self._gross[g], 1e-13 * float(np.abs(m_new[sl]).sum()),
                         self._balance_floor[g], 1e-300)
-            self.balance_error[g] = abs(stored - w_new[g]) / scale
-        err = 0.0
-        if opt.adaptive:
-            est = est_factor * np.abs(y - y_pred)
-            err = float(np.max(est / (opt.tolerance * self._scale + opt.relative_tolerance * np.abs(y))))
-        return y, m_new, err, ev, order, w_new, a0
+            errors[g] = abs(stored - w_new[g]) / scale
+        return w_new, errors
 
     def _newton_from_predictor(self, order: int) -> bool:
         return getattr(self.problem, "newton_from_predictor", False)

@@ -35,7 +35,7 @@ from fvsolver.conduction import ConductionProblem, Evaluation
 from fvsolver.device.body import PoolContact
 from fvsolver.device.spec import GRAVITY, DeviceSpec
 from fvsolver.materials import REFERENCE_TEMPERATURE
-from fvsolver.device.surfaces import CondensingWall, EvaporativeCap, RoomSurface
+from fvsolver.device.surfaces import CondensingWall, EvaporativeCap, RoomSurface, water_latent_heat
 from fvsolver.kernels import surfaces as ks
 from fvsolver.linear import LowRankUpdate
 from fvsolver.properties import convection, moist_air, porous
@@ -90,6 +90,8 @@ class DeviceProblem:
     exact_jacobian = False
     constant_jacobian = False
     linear = False
+    # Newton starts each step from the extrapolated state (inventories projected to >= 0)
+    newton_from_predictor = True
 
     def __init__(self, mesh, materials: dict, conditions: list[PatchCondition], spec: DeviceSpec,
                  sources: tuple = ()):
@@ -131,6 +133,11 @@ class DeviceProblem:
         self.inner = np.concatenate([mesh.patch_faces(p) for p in spec.vapour.patches] + [np.zeros(0, dtype=np.int64)])
         self.cap_faces = np.concatenate([mesh.patch_faces(p) for p in CAP_PATCHES if p in mesh.patch_names])
         self.room_faces = np.concatenate([mesh.patch_faces(p) for p in ROOM_PATCHES if p in mesh.patch_names])
+        self.outer_faces = np.concatenate([self.cap_faces, self.room_faces])
+        # the room faces whose coefficient is the head's h (a warm air stream's is not)
+        self.head_room_faces = np.concatenate(
+            [mesh.patch_faces(p) for p in ROOM_PATCHES if p in mesh.patch_names and p not in given and p not in hot]
+            + [np.zeros(0, dtype=np.int64)])
         n_in = len(self.inner)
         self.i_mv, self.i_c = n, np.arange(n + 1, n + 1 + n_in)
         self.i_w, self.i_tb = n + 1 + n_in, n + 2 + n_in
@@ -259,26 +266,40 @@ class DeviceProblem:
         s = self.saturation(y[self.i_w])
         wet = float(porous.drying_rate_factor(np.clip(s, 0.0, 1.0), spec.cap_water.critical_saturation,
                                               spec.cap_water.residual_saturation))
-        outer = np.concatenate([self.cap_faces, self.room_faces])
-        t_surf = float(np.average(T[self.mesh.boundary_cell[outer]], weights=self.mesh.boundary_areas[outer]))
-        t_surf = float(np.clip(t_surf, 274.0, 320.0))  # the correlations' range; iterates may stray
-        if room.convection == "given":
-            h = room.heat_transfer_coefficient
-        else:
-            h = float(convection.sphere_convection(self.outer_diameter, t_surf, room.air_temperature,
-                                                   room.pressure, room.air_speed, room.convection).h)
-        t_film = 0.5 * (t_surf + room.air_temperature)
-        h_m = float(convection.mass_transfer_coefficient(h, t_film, room.pressure, room.lewis_number))
+        outer = self.outer_faces
+        t_mean = float(np.average(T[self.mesh.boundary_cell[outer]], weights=self.mesh.boundary_areas[outer]))
+        t_surf = float(np.clip(t_mean, 274.0, 320.0))  # the correlations' range; iterates may stray
+        h, h_m = self._transfer_coefficients(t_surf)
         inventory = np.zeros(self.mesh.n_boundary)
         inventory[self.inner] = y[self.i_c]
         p = self.pressures(y)
-        ctx = {"cap": {"h": h, "h_m": h_m, "wet_fraction": wet, "saturation": s},
+        ctx = {"cap": {"h": h, "h_m": h_m, "wet_fraction": wet, "saturation": s, "surface_mean": t_mean},
                "room": {"h": h},
                "vapour": {"pressure": p["head_vapour_pa"], "temperature": p["vapour_temperature_k"],
                           "inventory": inventory}}
         if self.body is not None:
             ctx.update(self._body_context(T, y))
         return ctx
+
+    def _transfer_coefficients(self, t_surf: float) -> tuple[float, float]:
+        """The head's outside convection coefficient h (W/(m2 K)) and the cap's mass-transfer
+        coefficient h_m (m/s) at the outer surface's mean temperature t_surf (K)."""
+        room = self.spec.room
+        if room.convection == "given":
+            h = room.heat_transfer_coefficient
+        else:
+            h = float(convection.sphere_convection(self.outer_diameter, t_surf, room.air_temperature,
+                                                   room.pressure, room.air_speed, room.convection).h)
+        t_film = 0.5 * (t_surf + room.air_temperature)
+        return h, float(convection.mass_transfer_coefficient(h, t_film, room.pressure, room.lewis_number))
+
+    def _transfer_derivatives(self, t_mean: float) -> tuple[float, float]:
+        """dh/dt_surf and dh_m/dt_surf (central differences; zero where t_surf is clipped)."""
+        if not 274.0 + 0.01 < t_mean < 320.0 - 0.01:
+            return 0.0, 0.0
+        hp, hmp = self._transfer_coefficients(t_mean + 0.01)
+        hm_, hmm = self._transfer_coefficients(t_mean - 0.01)
+        return (hp - hm_) / 0.02, (hmp - hmm) / 0.02
 
     def _body_context(self, T: np.ndarray, y: np.ndarray) -> dict:
         """The pool's temperature and the body bulb's outside coefficients (room, warm air streams)."""
@@ -471,6 +492,9 @@ class DeviceProblem:
         np.add.at(w, P, weight)
         lumped = np.zeros(self.n - n)
         lumped[0] = alpha0 + dt * float(np.sum(area * dJ_dm))
+        # the outside coefficients h and h_m follow the outer surface's mean temperature: a second
+        # rank-one coupling, of every outer face to every outer cell
+        u2, w2 = self._transfer_coupling(dt, ev)
         # the cap's water
         if self.spec.cap_water.mode == "charge":
             bc = self.cap_faces
@@ -509,7 +533,41 @@ class DeviceProblem:
         r, cl, v = np.concatenate(rows), np.concatenate(cols), np.concatenate(vals)
         extra = sp.coo_matrix((v, (r, cl)), shape=(self.n, self.n))
         full = sp.bmat([[jtt, None], [None, sp.csr_matrix((self.n - n, self.n - n))]], format="csr")
-        return LowRankUpdate((full + extra.tocsr()).tocsr(), sp.csr_matrix(u[:, None]), sp.csr_matrix(w[:, None]))
+        left, right = (np.column_stack([u, u2]), np.column_stack([w, w2])) if u2 is not None else (u[:, None], w[:, None])
+        return LowRankUpdate((full + extra.tocsr()).tocsr(), sp.csr_matrix(left), sp.csr_matrix(right))
+
+    def _transfer_coupling(self, dt: float, ev: DeviceEvaluation):
+        """(u, w): the Jacobian's update u w^T from h(t_surf) and h_m(t_surf), t_surf = w . T the outer
+        cells' area-weighted mean; None where the coefficients are fixed."""
+        ctx, c = ev.context, ev.conduction
+        dh, dhm = self._transfer_derivatives(ctx["cap"]["surface_mean"])
+        if dh == 0.0 and dhm == 0.0:
+            return None, None
+        mesh, room = self.mesh, self.spec.room
+        u = np.zeros(self.n)
+        w = np.zeros(self.n)
+        outer = self.outer_faces
+        area_o = mesh.boundary_areas[outer]
+        np.add.at(w, mesh.boundary_cell[outer], area_o / area_o.sum())
+        for faces, cap in ((self.cap_faces, True), (self.head_room_faces, False)):
+            if faces.size == 0:
+                continue
+            kap, g1 = c.surface_conductance[faces], c.surface_derivative[faces]
+            t_s = c.surface_temperature[faces]
+            # dq/dt_surf at fixed T_s
+            dq = (room.air_temperature - t_s) * dh
+            if cap:
+                m_e, h_m = ev.evaporation, ctx["cap"]["h_m"]
+                lat = (c.surface_terms[faces, ks.LATENT] if c.surface_terms is not None
+                       else water_latent_heat(t_s))
+                dq = dq - lat * m_e * dhm / h_m
+            area = mesh.boundary_areas[faces]
+            np.add.at(u, mesh.boundary_cell[faces], -dt * area * kap * dq / (kap - g1))
+            if cap and self.spec.cap_water.mode == "charge":
+                dts = dq / (kap - g1)
+                u[self.i_w] = dt * float(np.sum(area * (ev.evaporation * dhm / ctx["cap"]["h_m"]
+                                                        + ev.extras["dme_dt"] * dts)))
+        return u, w
 
     def _pool_jacobian(self, alpha0, dt, dm, ev, lumped, add) -> None:
         """The pool's entries: its contact with the glass (surface temperatures eliminated per face),

@@ -54,6 +54,11 @@ def saturated_water_vapour_density(T: np.ndarray) -> tuple[np.ndarray, np.ndarra
     return c * p / t, c * (dp / t - p / t**2)
 
 
+def water_latent_heat(T: np.ndarray) -> np.ndarray:
+    """Water's latent heat (J/kg) at T inside the correlations' range."""
+    return water.latent_heat(_water_range(T))
+
+
 def water_latent_heat_derivative(T: np.ndarray) -> np.ndarray:
     """dL/dT of water's latent heat (PPDS12, as fvsolver.properties.water.latent_heat), J/(kg K)."""
     tau = 1.0 - T / water._PPDS12_TC
