@@ -25,6 +25,8 @@ from fvsolver.kernels import conduction as kern
 from fvsolver.linear import Factoriser, factorise, solve
 
 SCHEMES = ("backward_euler", "bdf2")
+# a Newton update this small (in tolerance units: K for temperatures) is the round-off of the unknowns
+ROUND_OFF_UPDATE = 1e-12
 
 
 @dataclass
@@ -397,8 +399,8 @@ class TimeStepper:
                 # more costs only a solve with the kept factor and the next evaluation
                 w_new, errors = self._balance(m, ev, dt, a0, a2)
                 worst = max(errors.values(), default=0.0)
-                # (or it has stopped falling while the updates are at round-off: the totals' own floor)
-                if worst <= opt.balance_tolerance or (worst > 0.5 * last_worst and norm <= opt.newton_tolerance):
+                # (or it has stopped falling while the updates are at the round-off of the unknowns)
+                if worst <= opt.balance_tolerance or (worst > 0.5 * last_worst and norm <= ROUND_OFF_UPDATE):
                     converged = True
                     break
                 last_worst = worst
