@@ -27,6 +27,8 @@ from fvsolver.linear import Factoriser, factorise, solve
 SCHEMES = ("backward_euler", "bdf2")
 # a Newton update this small (in tolerance units: K for temperatures) is the round-off of the unknowns
 ROUND_OFF_UPDATE = 1e-12
+# an iteration that contracts its update by less than this refactorises the Jacobian
+REFACTOR_CONTRACTION = float(__import__("os").environ.get("NWRC", "0.3"))
 
 
 @dataclass
@@ -371,6 +373,8 @@ class TimeStepper:
         hist = a1 * h.m[0] + (a2 * h.m[1] if a2 else 0.0)
         y_pred, est_factor = self._predict(dt, order) if opt.adaptive else (h.y[0], 0.0)
         project = getattr(p, "project", None)  # keeps iterates inside the unknowns' domain
+        # a problem may say when its Jacobian changes too fast to be kept between iterations
+        fast_changing = getattr(p, "jacobian_changes_fast", lambda y: False)
         # Newton starts from the extrapolated predictor (projected into the domain): its first
         # update is then of the size of the step's error instead of the step's change
         y = y_pred.copy() if opt.adaptive and self._newton_from_predictor(order) else h.y[0].copy()
@@ -379,6 +383,7 @@ class TimeStepper:
         # the Newton loop ends once the error left is a small fraction of the step's own tolerance
         # (adaptive steps), or below the absolute newton_tolerance
         weight = None
+        small = opt.tolerance if opt.adaptive else 0.0
         if opt.adaptive:
             weight = 1.0 / (opt.newton_fraction * (opt.tolerance * self._scale + opt.relative_tolerance * np.abs(h.y[0])))
         lu = None
@@ -406,28 +411,37 @@ class TimeStepper:
                 last_worst = worst
             if it == opt.max_newton_iterations:
                 break
-            if lu is None or not p.constant_jacobian and it > 0 and rate_poor:
+            if lu is None or not p.constant_jacobian and it > 0 and (rate_poor or clipped or fast_changing(y)):
                 lu = self._lu(a0, dt, dm, ev, p.constant_jacobian)
             delta = solve(lu, -residual)
             self.counters.newton_iterations += 1
             if not np.all(np.isfinite(delta)):
                 return None
+            clipped = False
             if project is not None:
                 before = y.copy()
                 y += delta
+                free = y.copy()
                 project(y)
-                delta = y - before  # the change actually made
+                # where the domain cut an update short, the Jacobian of the old iterate has misled it
+                # (a drying face's inventory row scales with its flux): the next iteration factorises
+                # afresh
+                clipped = not np.array_equal(y, free)
+                if clipped:
+                    delta = y - before  # the change actually made
             else:
                 y += delta
             norm = float(np.max(np.abs(delta) / self._scale))
-            rate_poor = norm > 0.3 * prev_norm
+            rate_poor = norm > REFACTOR_CONTRACTION * prev_norm
             prev_before, prev_norm = prev_norm, norm
             if p.exact_jacobian:
                 converged = True
                 # affine problem: the rate and content at the new state follow exactly
                 m = m + dm * delta
                 break
-            if it >= 1 and norm > 2.0 * prev_before and norm > 1e3 * opt.newton_tolerance:
+            # an update that grows while still below the step's own tolerance is not yet divergence
+            # (an inventory drying inside the step can make one iterate climb)
+            if it >= 1 and norm > 2.0 * prev_before and norm > max(1e3 * opt.newton_tolerance, small):
                 return None  # diverging: a shorter step will do better
             norms.append(norm)
             if it >= 4 and norm > 0.5 * norms[-4] and norm > 1e3 * opt.newton_tolerance:

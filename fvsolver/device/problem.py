@@ -37,7 +37,7 @@ from fvsolver.device.spec import GRAVITY, DeviceSpec
 from fvsolver.materials import REFERENCE_TEMPERATURE
 from fvsolver.device.surfaces import CondensingWall, EvaporativeCap, RoomSurface, water_latent_heat
 from fvsolver.kernels import surfaces as ks
-from fvsolver.linear import LowRankUpdate
+from fvsolver.linear import Assembler, LowRankUpdate
 from fvsolver.properties import convection, moist_air, porous
 from fvsolver.properties.fluids import UNIVERSAL_GAS_CONSTANT
 
@@ -45,6 +45,14 @@ CAP_PATCHES = ("cap_outer", "cap_edge")
 ROOM_PATCHES = ("glass_outer", "neck_outer")
 BODY_ROOM_PATCHES = ("body_outer",)
 POOL_PATCHES = ("body_inner", "dip_tube_outer", "tube_end")
+
+
+def _columns(n: int, columns) -> sp.csc_matrix:
+    """An (n, k) CSC matrix of the dense vectors' entries on their fixed supports (zeros kept)."""
+    indices = np.concatenate([support for _, support in columns])
+    data = np.concatenate([vector[support] for vector, support in columns])
+    indptr = np.concatenate([[0], np.cumsum([len(support) for _, support in columns])])
+    return sp.csc_matrix((data, indices, indptr), shape=(n, len(columns)))
 
 
 @dataclass
@@ -166,6 +174,14 @@ class DeviceProblem:
         self.outer_diameter = spec.room.diameter
         self.vapour_reference = spec.vapour.vapour_mass(spec.vapour.initial_temperature)
         self.tolerance_scale = self._tolerance_scale()
+        # the Jacobian's kept assembly, and where its low-rank columns can be nonzero
+        self._assemble = Assembler()
+        self._conduction_rows = None
+        wall_cells = np.unique(mesh.boundary_cell[self.inner])
+        self._u_support = np.unique(np.concatenate([wall_cells, self.i_c, [self.i_mv]])).astype(np.int64)
+        self._w_support = wall_cells.astype(np.int64)
+        self._outer_cells = np.unique(mesh.boundary_cell[self.outer_faces]).astype(np.int64)
+        self._outer_support = np.unique(np.concatenate([self._outer_cells, [self.i_w]])).astype(np.int64)
 
     # -- state ----------------------------------------------------------------------------------
     def initial_state(self, temperature: float) -> np.ndarray:
@@ -201,6 +217,14 @@ class DeviceProblem:
         c = y[self.i_c]
         np.maximum(c, 0.0, out=c)
         y[self.i_c] = c
+
+    def jacobian_changes_fast(self, y: np.ndarray) -> bool:
+        """True while an inner face is drying through its limiter's range (c_ref / 100 < c < 100
+        c_ref): its inventory row's Jacobian then changes by large factors between iterates, and
+        Newton needs it afresh every iteration."""
+        cr = self.wall_term.film_reference
+        c = y[self.i_c]
+        return bool(np.any((c > 1e-2 * cr) & (c < 1e2 * cr)))
 
     @property
     def nonnegative(self) -> np.ndarray:
@@ -446,13 +470,13 @@ class DeviceProblem:
         n, mesh, x = self.n_cells, self.mesh, ev.extras
         c = ev.conduction
         jtt = self.conduction.jacobian(alpha0, dt, dm[:n], c)
-        jtt = jtt - sp.diags(dt * x["dsensible"], format="csr")
         rows, cols, vals = [], [], []
 
         def add(r, cl, v):
             r, cl, v = np.broadcast_arrays(np.atleast_1d(r), np.atleast_1d(cl), np.atleast_1d(v))
             rows.append(r.ravel()), cols.append(cl.ravel()), vals.append(v.ravel())
 
+        add(np.arange(n), np.arange(n), -dt * x["dsensible"])
         # condensing inner faces
         b = self.inner
         P = mesh.boundary_cell[b]
@@ -530,11 +554,20 @@ class DeviceProblem:
             diag_rows = np.array([self.i_mv, self.i_w, self.i_tb, self.i_mp])
         # the lumped rows' diagonals that add() did not give (m_v, W, T_b, m_p), and the c diagonal above
         add(diag_rows, diag_rows, lumped[diag_rows - n])
-        r, cl, v = np.concatenate(rows), np.concatenate(cols), np.concatenate(vals)
-        extra = sp.coo_matrix((v, (r, cl)), shape=(self.n, self.n))
-        full = sp.bmat([[jtt, None], [None, sp.csr_matrix((self.n - n, self.n - n))]], format="csr")
-        left, right = (np.column_stack([u, u2]), np.column_stack([w, w2])) if u2 is not None else (u[:, None], w[:, None])
-        return LowRankUpdate((full + extra.tocsr()).tocsr(), sp.csr_matrix(left), sp.csr_matrix(right))
+        # the conduction block's entries and the couplings', summed by a kept assembly (the structure is
+        # the same from one call to the next)
+        if self._conduction_rows is None or len(self._conduction_rows) != len(jtt.indices):
+            self._conduction_rows = np.repeat(np.arange(n), np.diff(jtt.indptr))
+        r = np.concatenate([self._conduction_rows] + rows)
+        cl = np.concatenate([jtt.indices] + cols)
+        v = np.concatenate([jtt.data] + vals)
+        base = self._assemble(r, cl, v, (self.n, self.n))
+        columns = [(u, self._u_support), (w, self._w_support)]
+        if u2 is not None:
+            columns += [(u2, self._outer_support), (w2, self._outer_cells)]
+        left = _columns(self.n, columns[0::2])
+        right = _columns(self.n, columns[1::2])
+        return LowRankUpdate(base, left, right)
 
     def _transfer_coupling(self, dt: float, ev: DeviceEvaluation):
         """(u, w): the Jacobian's update u w^T from h(t_surf) and h_m(t_surf), t_surf = w . T the outer

@@ -136,6 +136,10 @@ class CondensingWall:
     accommodation: float
     kinetic_multiplier: float = 1.0
     film_reference: float = 1e-5  # kg/m2, ~10 nm of liquid: below this a face dries smoothly
+    # kg/(m2 s): the width over which the limiter turns on as a face turns from condensing to
+    # re-evaporating (a smooth positive part of the raw flux instead of a kink, which Newton's
+    # method would otherwise cycle across on a dry face at equilibrium)
+    flux_smoothing: float = 1e-6
     coupled = True
 
     @property
@@ -160,17 +164,22 @@ class CondensingWall:
         raw = beta * excess / root
         draw_dt = -beta * (dps / root + 0.5 * excess / (t * root))
         draw_dp = beta / root
-        # the inventory limiter phi = c / (c + c_ref) (c >= 0; the stepper keeps iterates there): an
-        # evaporating face slows as it dries and stops at zero.  j stays monotone in T_s (only a kink
-        # where the face turns), which the surface solve needs.  dphi/dc is the right derivative at
-        # c = 0, so that Newton's iterates on a drying face approach the root from above zero.
+        # the inventory limiter phi = c / (c + c_ref) (c >= 0; the stepper keeps iterates there) on the
+        # re-evaporating part: j = phi raw + (1 - phi) s(raw), s = eps ln(1 + e^(raw / eps)) a smooth
+        # positive part of raw.  An evaporating face slows as it dries and stops at zero (at c = 0,
+        # j = s(raw) >= 0); j stays monotone in T_s, which the surface solve needs.  dphi/dc is the
+        # right derivative at c = 0, so that Newton's iterates on a drying face approach the root
+        # from above zero.
         c = np.maximum(vap["inventory"][faces], 0.0)
-        cr = self.film_reference
+        cr, eps = self.film_reference, self.flux_smoothing
         phi = c / (c + cr)
         dphi = cr / (c + cr) ** 2
-        scale = np.where(raw < 0.0, phi, 1.0)
-        j = raw * scale
-        return j, draw_dt * scale, draw_dp * scale, np.where(raw < 0.0, raw * dphi, 0.0)
+        x = raw / eps
+        plus = eps * np.logaddexp(0.0, x)
+        sig = 0.5 * (1.0 + np.tanh(0.5 * x))  # the logistic function, ds/draw
+        j = phi * raw + (1.0 - phi) * plus
+        dj_draw = phi + (1.0 - phi) * sig
+        return j, dj_draw * draw_dt, dj_draw * draw_dp, (raw - plus) * dphi
 
     def heat_flux(self, T_s, time, centres, faces, context):
         j, dj, _, _ = self.mass_flux(T_s, faces, context)
@@ -194,7 +203,8 @@ class CondensingWall:
         lo, hi = max(eq.t_min, f.liquid_range[0]), min(eq.t_max, f.liquid_range[1])
         return np.array([self.coefficient, self.film_reference, lo, hi, eq.critical_temperature,
                          eq.critical_pressure, eq.a, eq.b, eq.c, eq.d, f.critical_temperature,
-                         *f.latent_heat_ppds12, UNIVERSAL_GAS_CONSTANT * f.critical_temperature, f.molar_mass])
+                         *f.latent_heat_ppds12, UNIVERSAL_GAS_CONSTANT * f.critical_temperature, f.molar_mass,
+                         self.flux_smoothing])
 
     def _clip(self, T_s: np.ndarray) -> np.ndarray:
         """Temperatures inside the fluid's data (trial values of the surface solve may stray);

@@ -30,8 +30,8 @@ TS, Q, DQ, M, DM, DM_DP, DM_DC, LATENT = range(8)
 OUTPUTS = 8
 # fluid constants of a condensing wall (one vector)
 (BETA, FILM_REFERENCE, T_LOW, T_HIGH, WAGNER_TC, WAGNER_PC, WA, WB, WC, WD, LATENT_TC, L0, L1, L2, L3, L4,
- LATENT_RTC, MOLAR_MASS) = range(18)
-FLUID_CONSTANTS = 18
+ LATENT_RTC, MOLAR_MASS, FLUX_SMOOTHING) = range(19)
+FLUID_CONSTANTS = 19
 # water: IAPWS-IF97 region 4 and PPDS12, from fvsolver.properties.water
 WATER_T_MIN, WATER_T_MAX = 273.16, 372.0
 
@@ -109,17 +109,28 @@ def _face_flux(kind, ts, p, fl, water, wl):
         raw = beta * excess / root
         draw_dt = -beta * (dps / root + 0.5 * excess / (t * root))
         draw_dp = beta / root
-        scale = 1.0
-        dscale = 0.0
-        if raw < 0.0:  # re-evaporating: limited by what the face holds
-            c = max(p[INVENTORY], 0.0)
-            cr = fl[FILM_REFERENCE]
-            scale = c / (c + cr)
-            dscale = cr / (c + cr) ** 2  # the right derivative at c = 0
-        m = raw * scale
-        dm = draw_dt * scale
-        dm_dp = draw_dp * scale
-        dm_dc = raw * dscale
+        # j = phi raw + (1 - phi) s(raw): s a smooth positive part of raw (width eps), so only the
+        # re-evaporating part is limited by phi = c / (c + c_ref), what the face holds
+        c = max(p[INVENTORY], 0.0)
+        cr = fl[FILM_REFERENCE]
+        phi = c / (c + cr)
+        dphi = cr / (c + cr) ** 2  # the right derivative at c = 0
+        eps = fl[FLUX_SMOOTHING]
+        x = raw / eps
+        if x > 40.0:
+            plus = raw
+            sig = 1.0
+        elif x < -40.0:
+            plus = eps * np.exp(x)
+            sig = np.exp(x)
+        else:
+            plus = eps * np.log1p(np.exp(x))
+            sig = 1.0 / (1.0 + np.exp(-x))
+        m = phi * raw + (1.0 - phi) * plus
+        dj_draw = phi + (1.0 - phi) * sig
+        dm = dj_draw * draw_dt
+        dm_dp = dj_draw * draw_dp
+        dm_dc = (raw - plus) * dphi
         lat, dlat = _ppds12(t, fl[LATENT_TC], fl[L0], fl[L1], fl[L2], fl[L3], fl[L4], fl[LATENT_RTC], fl[MOLAR_MASS])
         q += lat * m
         dq += lat * dm + dlat * m
