@@ -45,11 +45,12 @@ from fvsolver.case.loader import Case, _freeze, validate_data  # noqa: E402
 from fvsolver.stepper import TimeStepper  # noqa: E402
 
 DEMO = ROOT / "cases" / "demo.toml"
+RUNNING = ROOT / "cases" / "running_device.toml"
 MESH_KEYS = ("glass_cells", "cap_cells", "polar_cells", "neck_cells")
 
 
-def demo_case(factor: int, seconds: float) -> Case:
-    data = tomllib.loads(DEMO.read_text())
+def demo_case(factor: int, seconds: float, path: Path = DEMO) -> Case:
+    data = tomllib.loads(path.read_text())
     for k in MESH_KEYS:
         data["mesh"][k] *= factor
     data["time"]["end"] = seconds
@@ -109,8 +110,8 @@ def floor_costs(J, repeats: int) -> dict:
     return best
 
 
-def bench(factor: int, seconds: float, repeats: int) -> dict:
-    setup = build(demo_case(factor, seconds))
+def bench(factor: int, seconds: float, repeats: int, path: Path = DEMO) -> dict:
+    setup = build(demo_case(factor, seconds, path))
     problem = setup.problem
     stepper = TimeStepper(problem, setup.initial, 0.0, seconds, setup.options)
     evaluate = Timed(problem.evaluate)
@@ -147,7 +148,7 @@ def bench(factor: int, seconds: float, repeats: int) -> dict:
         ms_per_step=ms_per_step, floor_ms_per_step=floor_ms, ratio_to_floor=ms_per_step / floor_ms,
         newton_per_step=newton_per_step, newton_failures=c.newton_failures, floor=floor,
         orderings=keeper_run.orderings, time_to_end_s=stepper.t,
-        cells=problem.n_cells, unknowns=problem.n, wall_faces=len(problem.inner),
+        case=path.stem, cells=problem.n_cells, unknowns=problem.n, wall_faces=len(problem.inner),
         steps=c.steps, newton=c.newton_iterations, factorisations=c.factorisations,
         stepping=stepping, t_eval=evaluate.seconds, t_fact=factorise.seconds,
         t_formed=t_formed, t_bordered=t_bordered, t_kept=t_kept,
@@ -162,6 +163,8 @@ def main(argv=None) -> int:
     ap.add_argument("--seconds", type=float, default=10.0, help="simulated time before the Jacobian is taken")
     ap.add_argument("--repeats", type=int, default=5)
     ap.add_argument("--json", type=Path, default=None, metavar="FILE", help="also write the per-size fields as JSON")
+    ap.add_argument("--no-running", action="store_true",
+                    help="leave out the running-device demo's row (cases/running_device.toml, its first --seconds)")
     args = ap.parse_args(argv)
     bench(1, 0.2, 1)  # warm-up: numba compiles its kernels on the first run
     rows = []
@@ -169,40 +172,44 @@ def main(argv=None) -> int:
         r = bench(f, args.seconds, args.repeats)
         rows.append(r)
         print(f"factor {f}: {r['cells']} cells done", file=sys.stderr, flush=True)
+    if not args.no_running:
+        bench(1, 0.2, 1, RUNNING)
+        rows.append(bench(1, args.seconds, args.repeats, RUNNING))
+        print(f"running device: {rows[-1]['cells']} cells done", file=sys.stderr, flush=True)
     print("Factorisation of the device Jacobian at t = %g s (median of %d, ms; fill = nnz(L) + nnz(U))"
           % (args.seconds, args.repeats))
     print()
-    print("| cells | wall faces | formed ms | bordered ms | kept ms | formed / kept | bordered / kept "
+    print("| case | cells | wall faces | formed ms | bordered ms | kept ms | formed / kept | bordered / kept "
           "| fill formed | fill kept | max rel. diff of solves |")
-    print("|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|")
+    print("|---|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|")
     for r in rows:
-        print(f"| {r['cells']} | {r['wall_faces']} | {r['t_formed']:.1f} | {r['t_bordered']:.1f} | "
+        print(f"| {r['case']} | {r['cells']} | {r['wall_faces']} | {r['t_formed']:.1f} | {r['t_bordered']:.1f} | "
               f"{r['t_kept']:.1f} | {r['t_formed'] / r['t_kept']:.2f} | {r['t_bordered'] / r['t_kept']:.2f} | "
               f"{r['fill_formed']:,} | {r['fill_kept']:,} | {r['diff']:.1e} |")
     print()
     print("The run to t = %g s (stepping time; shares of it)" % args.seconds)
     print()
-    print("| cells | steps | Newton it/step | factorisations/step | stepping s | evaluations | factorisations | rest |")
-    print("|---:|---:|---:|---:|---:|---:|---:|---:|")
+    print("| case | cells | steps | Newton it/step | factorisations/step | stepping s | evaluations | factorisations | rest |")
+    print("|---|---:|---:|---:|---:|---:|---:|---:|---:|")
     for r in rows:
         s = r["stepping"]
-        print(f"| {r['cells']} | {r['steps']} | {r['newton'] / r['steps']:.1f} | "
+        print(f"| {r['case']} | {r['cells']} | {r['steps']} | {r['newton'] / r['steps']:.1f} | "
               f"{r['factorisations'] / r['steps']:.1f} | {s:.2f} | {r['t_eval'] / s:.0%} | "
               f"{r['t_fact'] / s:.0%} | {1 - (r['t_eval'] + r['t_fact']) / s:.0%} |")
     print()
     print("Cost per step against its floor (one bare splu of the same Jacobian, best ordering, plus the "
           "run's Newton iterations per step in bare solves)")
     print()
-    print("| cells | ms/step | floor ms/step | ratio to floor | Newton it/step | Newton failures | orderings "
+    print("| case | cells | ms/step | floor ms/step | ratio to floor | Newton it/step | Newton failures | orderings "
           "| floor ordering | floor factor ms | floor solve ms |")
-    print("|---:|---:|---:|---:|---:|---:|---:|---|---:|---:|")
+    print("|---|---:|---:|---:|---:|---:|---:|---:|---|---:|---:|")
     for r in rows:
         fl = r["floor"]
-        print(f"| {r['cells']} | {r['ms_per_step']:.1f} | {r['floor_ms_per_step']:.2f} | {r['ratio_to_floor']:.1f} | "
+        print(f"| {r['case']} | {r['cells']} | {r['ms_per_step']:.1f} | {r['floor_ms_per_step']:.2f} | {r['ratio_to_floor']:.1f} | "
               f"{r['newton_per_step']:.1f} | {r['newton_failures']} | {r['orderings']} | {fl['ordering']} | "
               f"{fl['factor_ms']:.2f} | {fl['solve_ms']:.3f} |")
     if args.json is not None:
-        keys = ("cells", "ms_per_step", "floor_ms_per_step", "ratio_to_floor", "newton_per_step", "newton_failures",
+        keys = ("case", "cells", "ms_per_step", "floor_ms_per_step", "ratio_to_floor", "newton_per_step", "newton_failures",
                 "unknowns", "steps", "orderings", "factorisations", "fill_kept", "time_to_end_s")
         out = [{k: r[k] for k in keys} | {"floor": r["floor"]} for r in rows]
         args.json.write_text(json.dumps({"seconds": args.seconds, "sizes": out}, indent=2) + "\n")

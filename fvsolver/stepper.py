@@ -305,16 +305,30 @@ class TimeStepper:
         if not use_bdf2:
             return 1, 1.0, -1.0, 0.0
         w = dt / self._dts[0]
-        a0, a1, a2 = (1 + 2 * w) / (1 + w), -(1 + w), w * w / (1 + w)
+        return 2, (1 + 2 * w) / (1 + w), -(1 + w), w * w / (1 + w)
+
+    def _history_part(self, order, a0, a1, a2):
+        """The step's coefficients and history a1 m_n + a2 m_n-1, first-order where BDF2 has no
+        solution inside the domain.
+
+        BDF2's history part -(a1 m_n + a2 m_n-1) / a0 of an unknown that must stay >= 0 (an
+        inventory drying out) can itself be negative: no solution >= 0 exists then, and the step is
+        taken first-order (backward Euler keeps it >= 0). A negative part below the round-off of
+        those unknowns' total (a dried face decaying towards zero) is set to zero instead.
+        """
+        h = self._history
+        hist = a1 * h.m[0] + (a2 * h.m[1] if a2 else 0.0)
         keep = getattr(self.problem, "nonnegative", None)
-        if keep is not None and len(keep):
-            # BDF2's history part -(a1 m_n + a2 m_n-1) / a0 of an unknown that must stay >= 0 (an
-            # inventory drying out) can itself be negative: no solution >= 0 exists then, and the
-            # step is taken first-order (backward Euler keeps it >= 0)
-            h = self._history
-            if np.any(a1 * h.m[0][keep] + a2 * h.m[1][keep] > 0.0):
-                return 1, 1.0, -1.0, 0.0
-        return 2, a0, a1, a2
+        if order == 2 and keep is not None and len(keep):
+            part = hist[keep]
+            excess = float(part[part > 0.0].sum())
+            if excess > 0.0:
+                if excess <= 1e-16 * float(np.abs(h.m[0][keep]).sum()):
+                    hist[keep] = np.minimum(part, 0.0)
+                else:
+                    order, a0, a1, a2 = 1, 1.0, -1.0, 0.0
+                    hist = a1 * h.m[0]
+        return order, a0, a1, a2, hist
 
     def _predict(self, dt: float, order: int):
         """Extrapolated state and the factor turning |corrector - predictor| into the error."""
@@ -370,7 +384,7 @@ class TimeStepper:
         if op is not None:
             return self._affine_step(op, dt, order, a0, a1, a2)
         t_new = self.t + dt
-        hist = a1 * h.m[0] + (a2 * h.m[1] if a2 else 0.0)
+        order, a0, a1, a2, hist = self._history_part(order, a0, a1, a2)
         y_pred, est_factor = self._predict(dt, order) if opt.adaptive else (h.y[0], 0.0)
         project = getattr(p, "project", None)  # keeps iterates inside the unknowns' domain
         # a problem may say when its Jacobian changes too fast to be kept between iterations

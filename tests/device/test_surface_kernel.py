@@ -71,12 +71,12 @@ def test_latent_heat_derivatives_are_exact():
 
 def test_inventories_never_go_below_zero_while_faces_dry():
     """A dry room (30 %) dries the warmer inner faces within a minute: their inventories reach zero
-    (before, with a smooth limiter and BDF2, they went to about -1e-4 kg/m2) and never below, and
-    every total still balances to round-off per step."""
+    (before, with a smooth limiter and BDF2, they went to about -1e-4 kg/m2) and never below, every
+    total still balances to round-off per step, and Newton never fails on a drying face."""
     problem, stepper, lowest = stepped(90.0, room={"relative_humidity": 0.3},
                                        target={"column_height": 0.05, "stop_when_reached": False})
     c = stepper.y[problem.i_c]
     assert lowest >= 0.0
     assert np.sum(c < 1e-6) >= 3  # faces that dried out
     assert max(stepper.balance_error.values()) < 1e-8
-    assert stepper.counters.newton_failures <= 3
+    assert stepper.counters.newton_failures == 0
