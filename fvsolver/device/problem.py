@@ -181,7 +181,11 @@ class DeviceProblem:
         self._u_support = np.unique(np.concatenate([wall_cells, self.i_c, [self.i_mv]])).astype(np.int64)
         self._w_support = wall_cells.astype(np.int64)
         self._outer_cells = np.unique(mesh.boundary_cell[self.outer_faces]).astype(np.int64)
-        self._outer_support = np.unique(np.concatenate([self._outer_cells, [self.i_w]])).astype(np.int64)
+        self._outer_support = np.unique(np.concatenate([self._outer_cells, self.cap_cells, [self.i_w]])).astype(np.int64)
+        self._cap_support = np.asarray(self.cap_cells, dtype=np.int64)
+        self._cap_face_cells = np.unique(mesh.boundary_cell[self.cap_faces]).astype(np.int64)
+        if body is not None:  # the joined vapour spaces' flow reaches the pool's rows
+            self._u_support = np.unique(np.concatenate([self._u_support, [self.i_tb, self.i_mp]])).astype(np.int64)
 
     # -- state ----------------------------------------------------------------------------------
     def initial_state(self, temperature: float) -> np.ndarray:
@@ -377,6 +381,7 @@ class DeviceProblem:
         """W into each cap cell from the sensible enthalpy of the water leaving or arriving."""
         out = np.zeros(self.n_cells)
         dout = np.zeros(self.n_cells)
+        per_evaporation = np.zeros(self.n_cells)  # d out / d(evaporation_total)
         cells = self.cap_cells
         v = self.mesh.cell_volumes[cells]
         cw = self.spec.cap_water
@@ -387,11 +392,14 @@ class DeviceProblem:
             out[cells] = v * de_ds * ds_dt
             dout[cells] = v * self.cap_material.porosity * (
                 self.cap_material.water_volumetric_heat - 1.2 * 1006.0) * ds_dt
+            per_evaporation[cells] = -v * de_ds / self.pore_water_capacity
         else:
             # the reservoir replaces what evaporates, with water at its own temperature
             share = evaporation_total * v / self.cap_volume * cw.water_heat_capacity
             out[cells] = share * (cw.reservoir_temperature - T[cells])
             dout[cells] = -share
+            per_evaporation[cells] = v / self.cap_volume * cw.water_heat_capacity * (cw.reservoir_temperature - T[cells])
+        self._per_evaporation = per_evaporation
         return out, dout
 
     def evaluate(self, y: np.ndarray, time: float) -> DeviceEvaluation:
@@ -434,7 +442,8 @@ class DeviceProblem:
                    "pool_energy": extras.get("pool_gross", 0.0) + 1e-300}
         return DeviceEvaluation(rate, ev, ctx, inflows, grosses, j, m_e, sensible,
                                 {"dj_dt": dj_dt, "dj_dp": dj_dp, "dj_dc": dj_dc, "dme_dt": dme_dt,
-                                 "dsensible": dsensible, "T": T, **extras})
+                                 "dsensible": dsensible, "sensible_per_evaporation": self._per_evaporation,
+                                 "T": T, **extras})
 
     def joint_flow(self, y: np.ndarray) -> tuple[float, float, float]:
         """Vapour flow from the pool into the head while tipped (kg/s) and its derivatives with
@@ -512,6 +521,12 @@ class DeviceProblem:
         np.add.at(u, P, -dt * area * kap * dts_dtv)
         u[self.i_c] = -dt * area * dJ_dtv
         u[self.i_mv] = dt * float(np.sum(area * dJ_dtv))
+        if self.body is not None and self.tipped:
+            # the joined vapour spaces' flow G = k (p_sat(T_p) - p_v) sees T_v through p_v too
+            dg_dtv = -self.joint_conductance * per_tv
+            u[self.i_mv] -= dt * dg_dtv
+            u[self.i_mp] += dt * dg_dtv
+            u[self.i_tb] += dt * dg_dtv * x["leaving_enthalpy"]
         w = np.zeros(self.n)
         np.add.at(w, P, weight)
         lumped = np.zeros(self.n - n)
@@ -519,6 +534,9 @@ class DeviceProblem:
         # the outside coefficients h and h_m follow the outer surface's mean temperature: a second
         # rank-one coupling, of every outer face to every outer cell
         u2, w2 = self._transfer_coupling(dt, ev)
+        # the water's sensible enthalpy in every cap cell follows the total evaporation, which
+        # follows the temperatures of the cells under the cap's faces: a third
+        u3, w3 = self._evaporation_coupling(dt, ev)
         # the cap's water
         if self.spec.cap_water.mode == "charge":
             bc = self.cap_faces
@@ -544,6 +562,8 @@ class DeviceProblem:
             cells = self.cap_cells
             de_dW = self.cap_material.denergy_dsaturation(x["T"][cells]) / self.pore_water_capacity
             add(cells, self.i_w, alpha0 * mesh.cell_volumes[cells] * de_dW)
+            # the water's sensible enthalpy follows the total evaporation, which follows W
+            add(cells, self.i_w, -dt * x["sensible_per_evaporation"][cells] * float(np.sum(ac * dME_dW)))
         else:
             lumped[self.i_w - n] = alpha0
         bulb = self.spec.second_bulb
@@ -562,12 +582,25 @@ class DeviceProblem:
         cl = np.concatenate([jtt.indices] + cols)
         v = np.concatenate([jtt.data] + vals)
         base = self._assemble(r, cl, v, (self.n, self.n))
-        columns = [(u, self._u_support), (w, self._w_support)]
+        columns = [(u, self._u_support), (w, self._w_support), (u3, self._cap_support), (w3, self._cap_face_cells)]
         if u2 is not None:
             columns += [(u2, self._outer_support), (w2, self._outer_cells)]
         left = _columns(self.n, columns[0::2])
         right = _columns(self.n, columns[1::2])
         return LowRankUpdate(base, left, right)
+
+    def _evaporation_coupling(self, dt: float, ev: DeviceEvaluation):
+        """(u, w): the Jacobian's update u w^T of the water's sensible enthalpy in the cap cells through
+        the total evaporation E = sum A m_e(T_s), T_s eliminated per face."""
+        c, mesh = ev.conduction, self.mesh
+        u = np.zeros(self.n)
+        w = np.zeros(self.n)
+        faces = self.cap_faces
+        if faces.size:
+            kap, g1 = c.surface_conductance[faces], c.surface_derivative[faces]
+            np.add.at(w, mesh.boundary_cell[faces], mesh.boundary_areas[faces] * ev.extras["dme_dt"] * kap / (kap - g1))
+            u[self.cap_cells] = -dt * ev.extras["sensible_per_evaporation"][self.cap_cells]
+        return u, w
 
     def _transfer_coupling(self, dt: float, ev: DeviceEvaluation):
         """(u, w): the Jacobian's update u w^T from h(t_surf) and h_m(t_surf), t_surf = w . T the outer
@@ -596,10 +629,13 @@ class DeviceProblem:
                 dq = dq - lat * m_e * dhm / h_m
             area = mesh.boundary_areas[faces]
             np.add.at(u, mesh.boundary_cell[faces], -dt * area * kap * dq / (kap - g1))
-            if cap and self.spec.cap_water.mode == "charge":
+            if cap:
                 dts = dq / (kap - g1)
-                u[self.i_w] = dt * float(np.sum(area * (ev.evaporation * dhm / ctx["cap"]["h_m"]
-                                                        + ev.extras["dme_dt"] * dts)))
+                devap = float(np.sum(area * (ev.evaporation * dhm / ctx["cap"]["h_m"] + ev.extras["dme_dt"] * dts)))
+                cells = self.cap_cells
+                u[cells] -= dt * ev.extras["sensible_per_evaporation"][cells] * devap
+                if self.spec.cap_water.mode == "charge":
+                    u[self.i_w] = dt * devap
         return u, w
 
     def _pool_jacobian(self, alpha0, dt, dm, ev, lumped, add) -> None:
