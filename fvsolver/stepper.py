@@ -270,7 +270,9 @@ class TimeStepper:
         h = self._history
         if len(h.t) < 2:
             return h.y[0].copy()
-        pts = min(len(h.t), self.order + 1)
+        # a BDF2 run interpolates quadratically also over a step taken first-order (an inventory
+        # drying out): the linear interpolant of a long step misplaces events inside it
+        pts = min(len(h.t), 3 if self.options.scheme == "bdf2" else self.order + 1)
         ts, ys = h.t[:pts], h.y[:pts]
         out = np.zeros_like(ys[0])
         for i in range(pts):
@@ -338,7 +340,9 @@ class TimeStepper:
                 ev = self.problem.evaluate(self.y, self.t)
                 self.counters.evaluations += 1
                 _, dm = self.problem.capacity(self.y)
-                self._f0 = ev.rate / dm
+                dm = np.broadcast_to(dm, ev.rate.shape)
+                # an unknown without content (a lumped state held fixed) is not extrapolated
+                self._f0 = np.divide(ev.rate, dm, out=np.zeros_like(ev.rate), where=dm != 0.0)
             return self.y + dt * self._f0, 0.5
         h0, y0, y1 = dt, h.y[0], h.y[1]
         h1 = self._dts[0]
@@ -391,7 +395,8 @@ class TimeStepper:
         fast_changing = getattr(p, "jacobian_changes_fast", lambda y: False)
         # Newton starts from the extrapolated predictor (projected into the domain): its first
         # update is then of the size of the step's error instead of the step's change
-        y = y_pred.copy() if opt.adaptive and self._newton_from_predictor(order) else h.y[0].copy()
+        start = opt.adaptive and self._newton_from_predictor(order) and np.all(np.isfinite(y_pred))
+        y = y_pred.copy() if start else h.y[0].copy()
         if project is not None:
             project(y)
         # the Newton loop ends once the error left is a small fraction of the step's own tolerance

@@ -200,7 +200,7 @@ class CondensingWall:
     def fluid_constants(self) -> np.ndarray:
         """The compiled solve's fluid vector (``fvsolver.kernels.surfaces.FLUID_CONSTANTS`` entries)."""
         f, eq = self.fluid, self.fluid.vapour_pressure
-        lo, hi = max(eq.t_min, f.liquid_range[0]), min(eq.t_max, f.liquid_range[1])
+        lo, hi = self._limits()
         return np.array([self.coefficient, self.film_reference, lo, hi, eq.critical_temperature,
                          eq.critical_pressure, eq.a, eq.b, eq.c, eq.d, f.critical_temperature,
                          *f.latent_heat_ppds12, UNIVERSAL_GAS_CONSTANT * f.critical_temperature, f.molar_mass,
@@ -209,8 +209,13 @@ class CondensingWall:
     def _clip(self, T_s: np.ndarray) -> np.ndarray:
         """Temperatures inside the fluid's data (trial values of the surface solve may stray);
         the run checks and reports real excursions outside the data range."""
-        eq = self.fluid.vapour_pressure
-        return np.clip(T_s, max(eq.t_min, self.fluid.liquid_range[0]), min(eq.t_max, self.fluid.liquid_range[1]))
+        return np.clip(T_s, *self._limits())
+
+    def _limits(self) -> tuple[float, float]:
+        """The fluid's data range, closed just below the critical point (where the latent heat's
+        slope is infinite)."""
+        eq, f = self.fluid.vapour_pressure, self.fluid
+        return max(eq.t_min, f.liquid_range[0]), min(eq.t_max, f.liquid_range[1]) * (1.0 - 1e-9)
 
     def latent_heat(self, T_s: np.ndarray) -> np.ndarray:
         return self.fluid.latent_heat(self._clip(T_s))
