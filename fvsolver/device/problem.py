@@ -325,13 +325,13 @@ class DeviceProblem:
         t_film = 0.5 * (t_surf + room.air_temperature)
         return h, float(convection.mass_transfer_coefficient(h, t_film, room.pressure, room.lewis_number))
 
-    def _transfer_derivatives(self, t_mean: float) -> tuple[float, float]:
-        """dh/dt_surf and dh_m/dt_surf (central differences; zero where t_surf is clipped)."""
-        if not 274.0 + 0.01 < t_mean < 320.0 - 0.01:
+    def _transfer_derivatives(self, t_mean: float, h: float, h_m: float) -> tuple[float, float]:
+        """dh/dt_surf and dh_m/dt_surf (a forward difference of 0.01 K from the context's h and h_m;
+        zero where t_surf is clipped)."""
+        if not 274.0 < t_mean < 320.0 - 0.01:
             return 0.0, 0.0
         hp, hmp = self._transfer_coefficients(t_mean + 0.01)
-        hm_, hmm = self._transfer_coefficients(t_mean - 0.01)
-        return (hp - hm_) / 0.02, (hmp - hmm) / 0.02
+        return (hp - h) / 0.01, (hmp - h_m) / 0.01
 
     def _body_context(self, T: np.ndarray, y: np.ndarray) -> dict:
         """The pool's temperature and the body bulb's outside coefficients (room, warm air streams)."""
@@ -610,7 +610,7 @@ class DeviceProblem:
         """(u, w): the Jacobian's update u w^T from h(t_surf) and h_m(t_surf), t_surf = w . T the outer
         cells' area-weighted mean; None where the coefficients are fixed."""
         ctx, c = ev.context, ev.conduction
-        dh, dhm = self._transfer_derivatives(ctx["cap"]["surface_mean"])
+        dh, dhm = self._transfer_derivatives(ctx["cap"]["surface_mean"], ctx["cap"]["h"], ctx["cap"]["h_m"])
         if dh == 0.0 and dhm == 0.0:
             return None, None
         mesh, room = self.mesh, self.spec.room
