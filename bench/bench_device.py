@@ -87,12 +87,23 @@ def median_ms(fn, repeats: int) -> tuple[float, object]:
 FLOOR_ORDERINGS = ("MMD_AT_PLUS_A", "MMD_ATA", "COLAMD")
 
 
-def floor_costs(J, repeats: int) -> dict:
-    """Bare splu of the bordered Jacobian with each ordering (with and without SymmetricMode):
-    the cheapest factorisation and solve, ms (median of ``repeats`` each)."""
+def floor_costs(J, repeats: int, order=None) -> dict:
+    """Bare splu of the bordered Jacobian with each ordering (with and without SymmetricMode), and
+    with fvsolver's kept ordering ``order`` applied beforehand: the cheapest factorisation and
+    solve, ms (median of ``repeats`` each)."""
     A = fv_linear._system(J)
+    # the same rows scaled as fvsolver scales them (weak diagonals lifted): without it SuperLU pivots
+    # off the diagonal on the bordered rows and the bare factor fills up to 3 times more
+    rho = fv_linear.row_scale(A)
+    if rho is not None:
+        A = A.__class__((A.data * rho[A.indices], A.indices, A.indptr), shape=A.shape)
     b = np.random.default_rng(1).normal(size=A.shape[0])
     best = None
+    if order is not None and len(order) == A.shape[0]:
+        P = A[order][:, order].tocsc()
+        t_f, lu = median_ms(lambda: spla.splu(P, **fv_linear._PRE_ORDERED), repeats)
+        t_s, _ = median_ms(lambda: lu.solve(b), max(repeats, 5))
+        best = dict(ordering="fvsolver's", factor_ms=t_f, solve_ms=t_s, fill=int(lu.L.nnz + lu.U.nnz))
     for ordering in FLOOR_ORDERINGS:
         for symmetric in (False, True):
             kw = dict(permc_spec=ordering)
@@ -130,17 +141,19 @@ def bench(factor: int, seconds: float, repeats: int, path: Path = DEMO) -> dict:
     ev = problem.evaluate(stepper.y, stepper.t)
     _, dm = problem.capacity(stepper.y)
     J = problem.jacobian(1.5, stepper.last_dt, dm, ev)
-    formed = J.tocsr().tocsc()
-    t_formed, lu_formed = median_ms(lambda: spla.splu(formed, **fv_linear.SPLU_OPTIONS), repeats)
+    # the low-rank blocks formed densely take minutes to factorise beyond about 10k cells: left out there
+    formed = J.tocsr().tocsc() if problem.n_cells < 10000 else None
+    t_formed, lu_formed = (median_ms(lambda: spla.splu(formed, **fv_linear.SPLU_OPTIONS), repeats)
+                           if formed is not None else (float("nan"), None))
     t_bordered, f_bordered = median_ms(lambda: fv_linear.factorise(J), repeats)
     keeper = fv_linear.Factoriser()
     keeper(J)
     t_kept, f_kept = median_ms(lambda: keeper(J), repeats)
     b = np.random.default_rng(0).normal(size=problem.n)
-    x_formed = lu_formed.solve(b)
+    x_formed = lu_formed.solve(b) if lu_formed is not None else f_bordered.solve(b)
     diff = float(np.max(np.abs(f_kept.solve(b) - x_formed)) / np.max(np.abs(x_formed)))
     assert diff < 1e-8, diff
-    floor = floor_costs(J, repeats)
+    floor = floor_costs(J, repeats, keeper._order)
     newton_per_step = c.newton_iterations / c.steps
     floor_ms = floor["factor_ms"] + newton_per_step * floor["solve_ms"]
     ms_per_step = 1e3 * stepping / c.steps
@@ -152,7 +165,7 @@ def bench(factor: int, seconds: float, repeats: int, path: Path = DEMO) -> dict:
         steps=c.steps, newton=c.newton_iterations, factorisations=c.factorisations,
         stepping=stepping, t_eval=evaluate.seconds, t_fact=factorise.seconds,
         t_formed=t_formed, t_bordered=t_bordered, t_kept=t_kept,
-        fill_formed=int(lu_formed.L.nnz + lu_formed.U.nnz), fill_bordered=f_bordered.fill,
+        fill_formed=int(lu_formed.L.nnz + lu_formed.U.nnz) if lu_formed is not None else 0, fill_bordered=f_bordered.fill,
         fill_kept=f_kept.fill, diff=diff,
     )
 
