@@ -296,7 +296,7 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
         reason = f"{getattr(exc, 'reason', 'stopped by the user')} at t = {stepper.t:.6g} s (continue with --resume)"
         save_checkpoint()
     if cycle is not None and status == "complete":
-        cycle.finish(stepper.t, monitor, lambda: monitor.stall_reason(stepper.y, stepper.t))
+        cycle.finish(stepper.t, monitor, lambda: monitor.stall_reason(stepper.y, stepper.t), stepper.y)
     summary = _summary(case, setup, stepper, monitor, worst, status, reason)
     if cycle is not None:
         summary.update(cycle.summary())
@@ -419,7 +419,7 @@ def _write_plots_and_report(folder: Path, case, setup, summary, history, fields,
     if cycles:
         from fvsolver.plotting import cycle_plot
 
-        cycle_plot(history, cycles, folder / "cycles.png", title=plain_title(case["title"]))
+        cycle_plot(history, cycles, folder / "cycles.png", title=plain_title(case["title"]), subtitle=scenario)
         plots.append("cycles.png")
     write_report(folder, summary, plain_title(case["title"] or (case.path.stem if case.path else "case")),
                  _inputs(case), plots, scenario=scenario)

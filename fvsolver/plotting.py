@@ -686,7 +686,8 @@ def envelope_plot(temperatures: np.ndarray, humidities: np.ndarray, values: np.n
     _save(fig, path)
 
 
-def cycle_plot(history: Mapping[str, np.ndarray], cycles: Sequence[Mapping], path: Path, title: str = "") -> None:
+def cycle_plot(history: Mapping[str, np.ndarray], cycles: Sequence[Mapping], path: Path, title: str = "",
+               subtitle: str = "") -> None:
     """A running device: the pressure difference over the run with its tips marked, and the
     period of each cycle; write a PNG.
 
@@ -696,6 +697,7 @@ def cycle_plot(history: Mapping[str, np.ndarray], cycles: Sequence[Mapping], pat
     cycles : rows of cycles.csv (``"tip_time_s"``, ``"period_s"``, ``"pressure_drop_at_tip_pa"``)
     path : the PNG to write (atomically)
     title : shown above the panels
+    subtitle : the computed scenario, shown under the title
     """
     t = np.asarray(history["time_s"], dtype=float)
     fig, (top, bottom) = plt.subplots(2, 1, figsize=(8.0, 6.0), height_ratios=(2.0, 1.0), constrained_layout=True)
@@ -711,7 +713,8 @@ def cycle_plot(history: Mapping[str, np.ndarray], cycles: Sequence[Mapping], pat
     top.set_ylabel("pressure difference (Pa)")
     top.set_xlabel("time (s)")
     top.grid(alpha=0.3)
-    top.legend(loc="lower right", fontsize=8)
+    # above the panel: inside it, any corner covers some cycle's rise or fall
+    top.legend(loc="lower left", bbox_to_anchor=(0.0, 1.01), ncol=3, fontsize=8, frameon=False)
     periods = [(c["tip_time_s"], c["period_s"]) for c in cycles if c.get("period_s")]
     if periods:
         n = np.arange(2, len(periods) + 2)
@@ -724,8 +727,7 @@ def cycle_plot(history: Mapping[str, np.ndarray], cycles: Sequence[Mapping], pat
     bottom.set_ylabel("period (s)")
     bottom.grid(alpha=0.3)
     bottom.yaxis.set_major_formatter(matplotlib.ticker.ScalarFormatter(useOffset=False))
-    if title:
-        fig.suptitle(title, fontsize=10)
+    _titles(fig, title, subtitle)
     _save(fig, path)
 
 

@@ -14,12 +14,15 @@ from fvsolver.studies.envelope import (HUMIDITY_KEY, TEMPERATURE_KEY, _spans, bu
 
 
 def test_axes_take_ranges_and_lists_and_refuse_single_values():
-    assert parse_axis(TEMPERATURE_KEY, "288.15:298.15:3", "--temperature").values == (288.15, 293.15, 298.15)
+    assert parse_axis(TEMPERATURE_KEY, "linspace(288.15,298.15,3)", "--temperature").values == (288.15, 293.15,
+                                                                                                 298.15)
+    with pytest.warns(FutureWarning, match="linspace"):  # the older range syntax still reads, with a warning
+        assert parse_axis(TEMPERATURE_KEY, "288.15:298.15:3", "--temperature").values == (288.15, 293.15, 298.15)
     assert parse_axis(HUMIDITY_KEY, "0.9,0.3", "--humidity").values == (0.3, 0.9)  # sorted for the map
     with pytest.raises(CaseError, match="--humidity '0.5': expected at least two numbers"):
         parse_axis(HUMIDITY_KEY, "0.5", "--humidity")
-    with pytest.raises(CaseError, match="--temperature '290:x:3'"):
-        parse_axis(TEMPERATURE_KEY, "290:x:3", "--temperature")
+    with pytest.raises(CaseError, match=r"--temperature 'linspace\(290,x,3\)'"):
+        parse_axis(TEMPERATURE_KEY, "linspace(290,x,3)", "--temperature")
     with pytest.raises(CaseError, match="given twice"):
         parse_axis(HUMIDITY_KEY, "0.5,0.5", "--humidity")
 
