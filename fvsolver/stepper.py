@@ -28,7 +28,7 @@ SCHEMES = ("backward_euler", "bdf2")
 # a Newton update this small (in tolerance units: K for temperatures) is the round-off of the unknowns
 ROUND_OFF_UPDATE = 1e-12
 # an iteration that contracts its update by less than this refactorises the Jacobian
-REFACTOR_CONTRACTION = float(__import__("os").environ.get("NWRC", "0.3"))
+REFACTOR_CONTRACTION = 0.3
 
 
 @dataclass
@@ -81,7 +81,8 @@ class StepperOptions:
     def validate(self, where: str = "numerics") -> None:
         if self.scheme not in SCHEMES:
             raise CaseError(f"{where}.scheme: got {self.scheme!r}, expected one of {SCHEMES}")
-        for name in ("initial_step", "tolerance", "min_step", "max_step", "newton_tolerance"):
+        for name in ("initial_step", "tolerance", "min_step", "max_step", "newton_tolerance", "newton_fraction",
+                     "balance_tolerance"):
             v = getattr(self, name)
             if not (isinstance(v, (int, float)) and v > 0):
                 raise CaseError(f"{where}.{name}: got {v!r}, expected a positive number")
