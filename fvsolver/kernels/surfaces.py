@@ -19,6 +19,7 @@ from __future__ import annotations
 import numpy as np
 
 from fvsolver.kernels import jit
+from fvsolver.kernels.properties import if97_with_slope as _if97
 
 # kinds of face
 DRY, CAP, WALL = 0, 1, 2
@@ -42,25 +43,6 @@ def water_constants() -> tuple[np.ndarray, np.ndarray]:
 
     latent = np.array([w._PPDS12_TC, w._R * w._PPDS12_TC, w.MOLAR_MASS, w.MOLAR_MASS / w._R, *w._PPDS12])
     return np.ascontiguousarray(w._N_ARRAY, dtype=np.float64), latent
-
-
-@jit
-def _if97(t, n):
-    """p_sat (Pa) and dp_sat/dT (Pa/K) of water, IAPWS-IF97 eq. (30)."""
-    th = t + n[8] / (t - n[9])
-    a = th**2 + n[0] * th + n[1]
-    b = n[2] * th**2 + n[3] * th + n[4]
-    c = n[5] * th**2 + n[6] * th + n[7]
-    da = 2.0 * th + n[0]
-    db = 2.0 * n[2] * th + n[3]
-    dc = 2.0 * n[5] * th + n[6]
-    dth = 1.0 - n[8] / (t - n[9]) ** 2
-    s = np.sqrt(b**2 - 4.0 * a * c)
-    den = -b + s
-    x = 2.0 * c / den
-    ds = (b * db - 2.0 * (a * dc + c * da)) / s
-    dx = (2.0 * dc * den - 2.0 * c * (-db + ds)) / den**2
-    return 1.0e6 * x**4, 1.0e6 * 4.0 * x**3 * dx * dth
 
 
 @jit
