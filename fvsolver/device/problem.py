@@ -32,7 +32,7 @@ import scipy.sparse as sp
 
 from fvsolver.boundary import PatchCondition
 from fvsolver.conduction import ConductionProblem, Evaluation
-from fvsolver.device.body import PoolContact
+from fvsolver.device.body import PoolContact, wetted_fractions
 from fvsolver.device.spec import GRAVITY, DeviceSpec
 from fvsolver.materials import REFERENCE_TEMPERATURE
 from fvsolver.device.surfaces import CondensingWall, EvaporativeCap, RoomSurface, water_latent_heat
@@ -128,7 +128,8 @@ class DeviceProblem:
         self.tipped = False  # a whole device's vapour spaces are joined while it is tipped
         self._context_cache = None
         if body is not None:
-            contact = PoolContact(body.pool.level_z, body.liquid_coefficient, body.vapour_coefficient)
+            contact = self.pool_contact = PoolContact(body.pool.level_z, body.liquid_coefficient,
+                                                      body.vapour_coefficient, wetted_fractions(mesh, body.pool.level_z))
             coupled.update({p: (contact,) for p in POOL_PATCHES if p in mesh.patch_names})
             if "bore" not in coupled and "bore" in mesh.patch_names:
                 coupled["bore"] = ()  # the column stands in it at the pool's temperature: insulated
@@ -157,9 +158,8 @@ class DeviceProblem:
             self.n += 1
             self.pool_faces = np.concatenate([mesh.patch_faces(p) for p in POOL_PATCHES if p in mesh.patch_names])
             self.body_faces = np.concatenate([mesh.patch_faces(p) for p in BODY_ROOM_PATCHES])
-            contact = mesh.boundary_areas[self.pool_faces] * PoolContact(
-                body.pool.level_z, body.liquid_coefficient, body.vapour_coefficient).coefficient(
-                mesh.boundary_centres[self.pool_faces])
+            contact = mesh.boundary_areas[self.pool_faces] * self.pool_contact.coefficient(
+                mesh.boundary_centres[self.pool_faces], self.pool_faces)
             self.pool_conductance = float(contact.sum())  # W/K
             # the joined vapour spaces' conductance, kg/(s Pa)
             self.joint_conductance = (spec.vapour.volume * spec.vapour.fluid.molar_mass
