@@ -19,7 +19,7 @@ from fvsolver.case.writer import dumps
 from fvsolver.conduction import heat_flux_vectors
 from fvsolver.errors import CaseError, SolverError
 from fvsolver.outputs.files import atomic_write_text
-from fvsolver.outputs.paths import clean_partial_files
+from fvsolver.outputs.paths import clean_partial_files, prepare_output  # noqa: F401 (callers import it here)
 from fvsolver.safeguards import StateWatch, plain_title
 from fvsolver.stepper import TimeStepper
 
@@ -125,32 +125,6 @@ class FieldWriter:
         write_pvd(self.folder / "boundary.pvd", [(time, f"boundary_{k:04d}.vtu") for k, (time, _) in
                                                  enumerate(self.entries)])
         write_pvd(self.folder / "fields.pvd", self.entries)
-
-
-def _unfinished(folder: Path) -> bool:
-    """A run stopped before its end: no summary, or one that says interrupted."""
-    try:
-        return json.loads((folder / "summary.json").read_text()).get("status") == "interrupted"
-    except (OSError, ValueError, AttributeError):
-        return True
-
-
-def prepare_output(out: Path, overwrite: bool) -> Path:
-    from fvsolver.outputs.paths import output_folder
-
-    out = Path(out)
-    if out.is_dir() and any(out.iterdir()) and not overwrite:
-        if (out / "checkpoint.json").exists() and _unfinished(out):
-            raise CaseError(f"--out {out}: holds the checkpoint of an unfinished run; continue it with "
-                            f"--resume {out}, or start again with --overwrite")
-        raise CaseError(f"--out {out}: the folder exists and is not empty (expected a new or empty folder); "
-                        "choose another folder or pass --overwrite")
-    output_folder(out)
-    clean_partial_files(out)
-    stale = out / "summary.json"
-    if stale.exists():  # never leave an old summary that claims a result for this run
-        stale.unlink()
-    return out
 
 
 def run(case: Case, out: str | Path | None = None, overwrite: bool = False, progress=None,

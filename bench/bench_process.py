@@ -1,0 +1,210 @@
+"""Whole-process timings of the command line, measured side by side in one run.
+
+    python bench/bench_process.py [--baseline DIR] [--json FILE] [--repeats N] [--skip sweep,cold]
+
+Times, with the interpreter that runs this script (``python -m fvsolver`` from the source
+tree's root, so that tree's code runs; a pyenv shim in front of ``fvsolver`` adds its own
+~0.1 s, which is not fvsolver's):
+
+- ``--help`` and ``check cases/demo.toml``: the minimum over the repeats (warm: the first call
+  is not counted);
+- ``run cases/demo.toml`` with its default numerical-uncertainty companion runs and with
+  ``--no-uncertainty``, and the same run's phases measured inside one process (imports, set-up,
+  stepping, companion runs, plots and report, field files);
+- a cold numba cache: ``run --no-uncertainty`` with an empty ``NUMBA_CACHE_DIR`` against the
+  same command once that cache is filled; the difference is the kernels' compile time;
+- a sweep of 8 runs (``--vary room.relative_humidity=linspace(0.35,0.7,8)``) with ``--jobs 1``
+  and ``--jobs 2``: parallel efficiency = T(1 job) / (2 T(2 jobs)), and the sum of the runs' own
+  wall times (sweep.csv) against the elapsed time.
+
+With ``--baseline DIR`` (another source tree, e.g. an export of an earlier commit) every timing
+is also taken for that tree, interleaved with this one's, so both see the same machine load.
+The goals (2-core machine): --help and check under 0.3 s, run under 1.5 s, the sweep's
+efficiency at least 85 %.  This is a benchmark, not a test: it prints and never fails.
+"""
+from __future__ import annotations
+
+import argparse
+import csv
+import json
+import os
+import shutil
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parents[1]
+CASE = "cases/demo.toml"
+SWEEP_VARY = "room.relative_humidity=linspace(0.35,0.7,8)"
+
+# the phases of one run, measured inside one process (the tree's own modules, wrapped)
+PHASES = r"""
+import json, sys, time
+T0 = time.perf_counter()
+import fvsolver.cli
+import fvsolver.pipeline as pipeline
+imports = time.perf_counter() - T0
+import fvsolver.stepper as stepper
+import fvsolver.outputs.uncertainty as uncertainty
+acc = {"set_up_s": 0.0, "stepping_s": 0.0, "companions_s": 0.0, "plots_and_report_s": 0.0, "field_files_s": 0.0}
+inside = []  # a call inside another timed call (a companion run's steps) counts for the outer one
+def wrap(owner, name, key):
+    f = getattr(owner, name)
+    def timed(*a, **k):
+        if inside:
+            return f(*a, **k)
+        inside.append(key)
+        t = time.perf_counter()
+        try:
+            return f(*a, **k)
+        finally:
+            inside.pop()
+            acc[key] += time.perf_counter() - t
+    setattr(owner, name, timed)
+wrap(stepper.TimeStepper, "step", "stepping_s")
+wrap(uncertainty, "estimate", "companions_s")
+wrap(pipeline, "build_checked", "set_up_s")
+wrap(pipeline.FieldWriter, "write", "field_files_s")
+for name in ("_write_plots_and_report", "_finish_plots"):
+    if hasattr(pipeline, name):
+        wrap(pipeline, name, "plots_and_report_s")
+t = time.perf_counter()
+code = fvsolver.cli.main(["run", sys.argv[1], "--out", sys.argv[2], "--overwrite", "-q"] + sys.argv[3:])
+acc["command_s"] = time.perf_counter() - t
+acc["imports_s"] = imports
+print(json.dumps(acc))
+sys.exit(code)
+"""
+
+
+def _python_env(extra: dict | None = None) -> dict:
+    env = {k: v for k, v in os.environ.items() if k not in ("PYTHONPATH", "NUMBA_DISABLE_JIT")}
+    env.update(extra or {})
+    return env
+
+
+def timed(tree: Path, args: list[str], env: dict | None = None) -> float:
+    """Wall seconds of ``python -m fvsolver ARGS`` run from ``tree``'s root."""
+    start = time.perf_counter()
+    done = subprocess.run([sys.executable, "-m", "fvsolver", *args], cwd=tree, env=_python_env(env),
+                          stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True)
+    seconds = time.perf_counter() - start
+    if done.returncode != 0:
+        raise SystemExit(f"{tree}: fvsolver {' '.join(args)} exited {done.returncode}:\n{done.stderr[-2000:]}")
+    return seconds
+
+
+def side_by_side(trees: dict[str, Path], args_of, repeats: int, warm: bool = True) -> dict[str, dict]:
+    """Each tree's minimum and all times over ``repeats`` interleaved calls (one untimed first)."""
+    times: dict[str, list[float]] = {name: [] for name in trees}
+    if warm:
+        for name, tree in trees.items():
+            timed(tree, args_of(name))
+    for _ in range(repeats):
+        for name, tree in trees.items():
+            times[name].append(timed(tree, args_of(name)))
+    return {name: {"min_s": min(t), "times_s": [round(x, 3) for x in t]} for name, t in times.items()}
+
+
+def phases(tree: Path, out: Path, extra: list[str]) -> dict:
+    done = subprocess.run([sys.executable, "-c", PHASES, CASE, str(out), *extra], cwd=tree, env=_python_env(),
+                          capture_output=True, text=True)
+    if done.returncode != 0:
+        raise SystemExit(f"{tree}: phases failed:\n{done.stderr[-2000:]}")
+    return {k: round(v, 3) for k, v in json.loads(done.stdout.strip().splitlines()[-1]).items()}
+
+
+def cold_compile(tree: Path, scratch: Path) -> dict:
+    cache = scratch / f"numba-cache-{tree.name}"
+    shutil.rmtree(cache, ignore_errors=True)
+    env = {"NUMBA_CACHE_DIR": str(cache)}
+    args = ["run", CASE, "--out", str(scratch / "cold"), "--overwrite", "--no-uncertainty", "-q"]
+    cold = timed(tree, args, env)
+    warm = min(timed(tree, args, env) for _ in range(2))
+    return {"cold_s": round(cold, 3), "warm_s": round(warm, 3), "compile_s": round(cold - warm, 3)}
+
+
+def sweep(tree: Path, scratch: Path, jobs: int) -> dict:
+    out = scratch / f"sweep-{tree.name}-{jobs}"
+    seconds = timed(tree, ["sweep", CASE, "--vary", SWEEP_VARY, "--jobs", str(jobs), "--out", str(out),
+                           "--overwrite", "-q"])
+    with open(out / "sweep.csv", newline="") as f:
+        runs = [float(r["wall_time_s"]) for r in csv.DictReader(f)]
+    return {"elapsed_s": round(seconds, 3), "runs": len(runs), "sum_of_runs_s": round(sum(runs), 3),
+            "longest_run_s": round(max(runs), 3)}
+
+
+def main() -> int:
+    p = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    p.add_argument("--baseline", type=Path, default=None, help="another source tree, timed side by side")
+    p.add_argument("--json", type=Path, default=None, help="also write the results to this JSON file")
+    p.add_argument("--repeats", type=int, default=5, help="timed calls of --help and check (run: half)")
+    p.add_argument("--skip", default="", help="comma-separated parts to leave out: help,check,run,phases,cold,sweep")
+    a = p.parse_args()
+    skip = set(filter(None, a.skip.split(",")))
+    trees = {"this": ROOT} | ({"baseline": a.baseline.resolve()} if a.baseline else {})
+    scratch = Path(tempfile.mkdtemp(prefix="fvsolver-bench-"))
+    results: dict = {"python": sys.version.split()[0], "cpus": os.cpu_count(), "load_before": os.getloadavg()}
+    try:
+        if "help" not in skip:
+            results["help"] = side_by_side(trees, lambda n: ["--help"], a.repeats)
+        if "check" not in skip:
+            results["check"] = side_by_side(trees, lambda n: ["check", CASE], a.repeats)
+        if "run" not in skip:
+            r = max(1, a.repeats // 2)
+            results["run"] = side_by_side(trees, lambda n: ["run", CASE, "--out", str(scratch / f"run-{n}"),
+                                                            "--overwrite", "-q"], r)
+            results["run_no_uncertainty"] = side_by_side(
+                trees, lambda n: ["run", CASE, "--out", str(scratch / f"run-{n}"), "--overwrite", "--no-uncertainty",
+                                  "-q"], r, warm=False)
+        if "phases" not in skip:
+            results["phases"] = {n: phases(t, scratch / f"phases-{n}", []) for n, t in trees.items()}
+        if "cold" not in skip:
+            results["cold_numba_cache"] = {n: cold_compile(t, scratch) for n, t in trees.items()}
+        if "sweep" not in skip:
+            results["sweep"] = {}
+            for n, t in trees.items():
+                one, two = sweep(t, scratch, 1), sweep(t, scratch, 2)
+                results["sweep"][n] = {"jobs_1": one, "jobs_2": two,
+                                       "efficiency": round(one["elapsed_s"] / (2 * two["elapsed_s"]), 3)}
+    finally:
+        shutil.rmtree(scratch, ignore_errors=True)
+    results["load_after"] = os.getloadavg()
+    print(table(results, list(trees)))
+    if a.json:
+        a.json.write_text(json.dumps(results, indent=2))
+    return 0
+
+
+def table(r: dict, names: list[str]) -> str:
+    """The results as a Markdown table, one column per source tree."""
+    head = "| measurement | " + " | ".join(names) + " | goal |\n|---|" + "---:|" * len(names) + "---|\n"
+    rows = []
+
+    def row(label, values, goal=""):
+        rows.append(f"| {label} | " + " | ".join(values) + f" | {goal} |")
+
+    for key, label, goal in (("help", "`--help` (s, min)", "< 0.3 s"), ("check", "`check` demo (s, min)", "< 0.3 s"),
+                             ("run", "`run` demo, default (s, min)", "< 1.5 s"),
+                             ("run_no_uncertainty", "`run` demo `--no-uncertainty` (s, min)", "< 1.5 s")):
+        if key in r:
+            row(label, [f"{r[key][n]['min_s']:.2f}" for n in names], goal)
+    if "phases" in r:
+        for k in ("imports_s", "set_up_s", "stepping_s", "companions_s", "plots_and_report_s", "field_files_s",
+                  "command_s"):
+            row(f"run phase: {k[:-2].replace('_', ' ')} (s)", [f"{r['phases'][n].get(k, 0.0):.2f}" for n in names])
+    if "cold_numba_cache" in r:
+        row("cold numba cache: compile (s)", [f"{r['cold_numba_cache'][n]['compile_s']:.2f}" for n in names],
+            "reported")
+    if "sweep" in r:
+        s = r["sweep"]
+        row("sweep 8 runs, `--jobs 1` (s)", [f"{s[n]['jobs_1']['elapsed_s']:.2f}" for n in names])
+        row("sweep 8 runs, `--jobs 2` (s)", [f"{s[n]['jobs_2']['elapsed_s']:.2f}" for n in names])
+        row("sweep parallel efficiency", [f"{100 * s[n]['efficiency']:.0f} %" for n in names], ">= 85 %")
+    return head + "\n".join(rows) + f"\n\nload average before {r['load_before']}, after {r['load_after']}"
+
+
+if __name__ == "__main__":
+    sys.exit(main())
