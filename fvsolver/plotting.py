@@ -35,10 +35,8 @@ def _subplots(nrows: int = 1, ncols: int = 1, **options):
 
 def _save(fig, path: Path) -> None:
     buf = io.BytesIO()
-    # a constrained layout already fits every label inside the figure: a "tight" bounding box
-    # would only draw the whole figure a second time to find the same edges
-    tight = None if fig.get_layout_engine() is not None else "tight"
-    fig.savefig(buf, format="png", dpi=130, bbox_inches=tight)
+    # "tight" costs a second draw, but a legend row wider than its panel would be cut off without it
+    fig.savefig(buf, format="png", dpi=130, bbox_inches="tight")
     atomic_write_bytes(Path(path), buf.getvalue())
 
 

@@ -61,9 +61,17 @@ def start(jobs: int, modules: tuple[str, ...] = ()) -> ProcessPoolExecutor:
     return pool
 
 
-def stop(pool: ProcessPoolExecutor) -> None:
-    """Let a started pool go without running anything more in it."""
+def stop(pool: ProcessPoolExecutor, end_processes: bool = False) -> None:
+    """Let a started pool go without running anything more in it; ``end_processes`` also ends
+    its workers at once (SIGTERM) instead of letting them finish their start-up first."""
+    processes = list((getattr(pool, "_processes", None) or {}).values())
     pool.shutdown(wait=False, cancel_futures=True)
+    if end_processes:
+        for process in processes:
+            try:
+                process.terminate()
+            except (OSError, AttributeError):
+                pass
 
 
 def _interrupt(pool: ProcessPoolExecutor) -> None:
