@@ -28,6 +28,7 @@ import argparse
 import csv
 import json
 import os
+import resource
 import shutil
 import subprocess
 import sys
@@ -85,12 +86,18 @@ def _python_env(extra: dict | None = None) -> dict:
     return env
 
 
+LAST_CPU = {"s": 0.0}  # CPU seconds (user + system) of the last timed command and the processes it waited for
+
+
 def timed(tree: Path, args: list[str], env: dict | None = None) -> float:
     """Wall seconds of ``python -m fvsolver ARGS`` run from ``tree``'s root."""
+    before = resource.getrusage(resource.RUSAGE_CHILDREN)
     start = time.perf_counter()
     done = subprocess.run([sys.executable, "-m", "fvsolver", *args], cwd=tree, env=_python_env(env),
                           stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True)
     seconds = time.perf_counter() - start
+    after = resource.getrusage(resource.RUSAGE_CHILDREN)
+    LAST_CPU["s"] = (after.ru_utime - before.ru_utime) + (after.ru_stime - before.ru_stime)
     if done.returncode != 0:
         raise SystemExit(f"{tree}: fvsolver {' '.join(args)} exited {done.returncode}:\n{done.stderr[-2000:]}")
     return seconds
@@ -99,13 +106,16 @@ def timed(tree: Path, args: list[str], env: dict | None = None) -> float:
 def side_by_side(trees: dict[str, Path], args_of, repeats: int, warm: bool = True) -> dict[str, dict]:
     """Each tree's minimum and all times over ``repeats`` interleaved calls (one untimed first)."""
     times: dict[str, list[float]] = {name: [] for name in trees}
+    cpu: dict[str, list[float]] = {name: [] for name in trees}
     if warm:
         for name, tree in trees.items():
             timed(tree, args_of(name))
     for _ in range(repeats):
         for name, tree in trees.items():
             times[name].append(timed(tree, args_of(name)))
-    return {name: {"min_s": min(t), "times_s": [round(x, 3) for x in t]} for name, t in times.items()}
+            cpu[name].append(LAST_CPU["s"])
+    return {name: {"min_s": min(t), "times_s": [round(x, 3) for x in t], "min_cpu_s": round(min(cpu[name]), 3)}
+            for name, t in times.items()}
 
 
 def phases(tree: Path, out: Path, extra: list[str]) -> dict:
@@ -132,8 +142,8 @@ def sweep(tree: Path, scratch: Path, jobs: int) -> dict:
                            "--overwrite", "-q"])
     with open(out / "sweep.csv", newline="") as f:
         runs = [float(r["wall_time_s"]) for r in csv.DictReader(f)]
-    return {"elapsed_s": round(seconds, 3), "runs": len(runs), "sum_of_runs_s": round(sum(runs), 3),
-            "longest_run_s": round(max(runs), 3)}
+    return {"elapsed_s": round(seconds, 3), "cpu_s": round(LAST_CPU["s"], 3), "runs": len(runs),
+            "sum_of_runs_s": round(sum(runs), 3), "longest_run_s": round(max(runs), 3)}
 
 
 def main() -> int:
@@ -167,8 +177,14 @@ def main() -> int:
             results["sweep"] = {}
             for n, t in trees.items():
                 one, two = sweep(t, scratch, 1), sweep(t, scratch, 2)
-                results["sweep"][n] = {"jobs_1": one, "jobs_2": two,
-                                       "efficiency": round(one["elapsed_s"] / (2 * two["elapsed_s"]), 3)}
+                results["sweep"][n] = {
+                    "jobs_1": one, "jobs_2": two,
+                    "efficiency": round(one["elapsed_s"] / (2 * two["elapsed_s"]), 3),
+                    # the work the second job adds (start-up, imports, first-call costs done twice),
+                    # which a busy machine cannot hide: CPU seconds of 1 job over those of 2 jobs
+                    "cpu_ratio": round(one["cpu_s"] / two["cpu_s"], 3),
+                    # how well the 2 workers were kept busy: the runs' own wall times over 2 x elapsed
+                    "busy_fraction": round(two["sum_of_runs_s"] / (2 * two["elapsed_s"]), 3)}
     finally:
         shutil.rmtree(scratch, ignore_errors=True)
     results["load_after"] = os.getloadavg()
@@ -191,6 +207,7 @@ def table(r: dict, names: list[str]) -> str:
                              ("run_no_uncertainty", "`run` demo `--no-uncertainty` (s, min)", "< 1.5 s")):
         if key in r:
             row(label, [f"{r[key][n]['min_s']:.2f}" for n in names], goal)
+            row(label.replace("(s, min)", "CPU (s, min)"), [f"{r[key][n]['min_cpu_s']:.2f}" for n in names])
     if "phases" in r:
         for k in ("imports_s", "set_up_s", "stepping_s", "companions_s", "plots_and_report_s", "field_files_s",
                   "command_s"):
@@ -203,6 +220,8 @@ def table(r: dict, names: list[str]) -> str:
         row("sweep 8 runs, `--jobs 1` (s)", [f"{s[n]['jobs_1']['elapsed_s']:.2f}" for n in names])
         row("sweep 8 runs, `--jobs 2` (s)", [f"{s[n]['jobs_2']['elapsed_s']:.2f}" for n in names])
         row("sweep parallel efficiency", [f"{100 * s[n]['efficiency']:.0f} %" for n in names], ">= 85 %")
+        row("sweep CPU, `--jobs 1` / `--jobs 2`", [f"{100 * s[n]['cpu_ratio']:.0f} %" for n in names])
+        row("sweep workers busy (runs' wall / 2 x elapsed)", [f"{100 * s[n]['busy_fraction']:.0f} %" for n in names])
     return head + "\n".join(rows) + f"\n\nload average before {r['load_before']}, after {r['load_after']}"
 
 
