@@ -137,13 +137,43 @@ def cold_compile(tree: Path, scratch: Path) -> dict:
 
 
 def sweep(tree: Path, scratch: Path, jobs: int) -> dict:
+    """One sweep, with where its time went: from the launch to the first run's start (start-up),
+    the workers' idle time between the first start and the last finish (load balance), and from
+    the last finish to the end (the sweep's report, plot and exit).  A run's start is the moment
+    its progress line arrived less its own wall time (sweep.csv)."""
     out = scratch / f"sweep-{tree.name}-{jobs}"
-    seconds = timed(tree, ["sweep", CASE, "--vary", SWEEP_VARY, "--jobs", str(jobs), "--out", str(out),
-                           "--overwrite", "-q"])
+    before = resource.getrusage(resource.RUSAGE_CHILDREN)
+    start = time.perf_counter()
+    proc = subprocess.Popen([sys.executable, "-m", "fvsolver", "sweep", CASE, "--vary", SWEEP_VARY, "--jobs",
+                             str(jobs), "--out", str(out), "--overwrite"], cwd=tree, env=_python_env(),
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    arrivals = [time.perf_counter() - start for line in proc.stdout if line.lstrip().startswith("[")]
+    _, err = proc.communicate()
+    seconds = time.perf_counter() - start
+    after = resource.getrusage(resource.RUSAGE_CHILDREN)
+    if proc.returncode != 0:
+        raise SystemExit(f"{tree}: sweep --jobs {jobs} exited {proc.returncode}:\n{err[-2000:]}")
     with open(out / "sweep.csv", newline="") as f:
         runs = [float(r["wall_time_s"]) for r in csv.DictReader(f)]
-    return {"elapsed_s": round(seconds, 3), "cpu_s": round(LAST_CPU["s"], 3), "runs": len(runs),
-            "sum_of_runs_s": round(sum(runs), 3), "longest_run_s": round(max(runs), 3)}
+    # the progress lines arrive in the order the runs finish, which their summary.json files'
+    # modification times give too: that pairs each line with its run's wall time
+    first_start = min(a - w for a, w in zip(arrivals, _walls_in_finish_order(out, len(arrivals))))
+    last_finish = max(arrivals)
+    return {"elapsed_s": round(seconds, 3),
+            "cpu_s": round((after.ru_utime - before.ru_utime) + (after.ru_stime - before.ru_stime), 3),
+            "runs": len(runs), "sum_of_runs_s": round(sum(runs), 3), "longest_run_s": round(max(runs), 3),
+            "start_up_s": round(first_start, 3),
+            "idle_worker_s": round(max(0.0, jobs * (last_finish - first_start) - sum(runs)), 3),
+            "tail_s": round(seconds - last_finish, 3)}
+
+
+def _walls_in_finish_order(out: Path, n: int) -> list[float]:
+    """The runs' wall times in the order they finished (each run's summary.json is written as it
+    ends: order the run folders by that file's modification time)."""
+    with open(out / "sweep.csv", newline="") as f:
+        rows = list(csv.DictReader(f))
+    finished = sorted(rows, key=lambda r: (out / r["folder"] / "summary.json").stat().st_mtime)
+    return [float(r["wall_time_s"]) for r in finished][:n]
 
 
 def main() -> int:
@@ -221,6 +251,9 @@ def table(r: dict, names: list[str]) -> str:
         row("sweep 8 runs, `--jobs 2` (s)", [f"{s[n]['jobs_2']['elapsed_s']:.2f}" for n in names])
         row("sweep parallel efficiency", [f"{100 * s[n]['efficiency']:.0f} %" for n in names], ">= 85 %")
         row("sweep CPU, `--jobs 1` / `--jobs 2`", [f"{100 * s[n]['cpu_ratio']:.0f} %" for n in names])
+        for k in ("start_up_s", "idle_worker_s", "tail_s"):
+            row(f"sweep `--jobs 2`: {k[:-2].replace('_', ' ')} (s)", [f"{s[n]['jobs_2'][k]:.2f}" for n in names])
+            row(f"sweep `--jobs 1`: {k[:-2].replace('_', ' ')} (s)", [f"{s[n]['jobs_1'][k]:.2f}" for n in names])
         row("sweep workers busy (runs' wall / 2 x elapsed)", [f"{100 * s[n]['busy_fraction']:.0f} %" for n in names])
     return head + "\n".join(rows) + f"\n\nload average before {r['load_before']}, after {r['load_after']}"
 

@@ -280,7 +280,7 @@ def sweep(case: Case, varies: list[Vary], out: str | Path | None = None, overwri
         # the workers start and import the solver while this process checks the grid; this
         # process never imports the solver itself (each worker imports it once for all its runs)
         with _one_blas_thread_per_worker():
-            pool = workers.start(min(jobs, count), modules=("fvsolver.pipeline",))
+            pool = workers.start(min(jobs, count), modules=("fvsolver.pipeline",), shared=True)
     try:
         grid = variants(case, varies)  # every combination is checked before anything is written
         folder = prepare_output(Path(out), overwrite) if out is not None else None

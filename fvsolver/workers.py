@@ -26,15 +26,34 @@ from typing import Callable
 PARENT_POLL_S = 0.5  # how often a worker looks for its parent
 
 
+def _alive(pid: int) -> bool:
+    """Whether process ``pid`` still runs (a zombie, killed and not yet reaped, does not)."""
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:  # it exists, under another user
+        return True
+    try:
+        with open(f"/proc/{pid}/stat") as f:
+            return f.read().rsplit(")", 1)[1].split()[0] != "Z"
+    except (OSError, IndexError):  # no /proc here: kill(pid, 0) said it exists
+        return True
+
+
 def _watch_parent(parent: int, modules: tuple[str, ...] = ()) -> None:
-    """Worker initializer: end this process as soon as ``parent`` is gone; then import
-    ``modules`` (once per worker, before its first run)."""
+    """Worker initializer: end this process as soon as the sweep ``parent`` is gone; then import
+    ``modules`` (once per worker, before its first run; a no-op when its fork server has them).
+
+    A spawned worker's own parent is the sweep; a worker forked by a fork server keeps the server
+    alive (it holds the server's "alive" pipe), so it watches the sweep's process itself."""
+    started_under = os.getppid()
 
     def watch() -> None:
         while True:
-            time.sleep(PARENT_POLL_S)
-            if os.getppid() != parent:  # re-parented: the sweep that started us has died
+            if os.getppid() != started_under or not _alive(parent):  # the sweep that started us has died
                 os._exit(1)
+            time.sleep(PARENT_POLL_S)
 
     threading.Thread(target=watch, name="parent-watch", daemon=True).start()
     for name in modules:
@@ -45,17 +64,28 @@ def _ready() -> None:
     """A call that does nothing: submitted once per worker to start the workers ahead of the runs."""
 
 
-def _pool(jobs: int, modules: tuple[str, ...] = ()) -> ProcessPoolExecutor:
-    return ProcessPoolExecutor(max_workers=jobs, mp_context=multiprocessing.get_context("spawn"),
+def _context(shared: tuple[str, ...]):
+    """Spawned workers, or with ``shared`` modules workers forked from a fork server that imported
+    them once (where the platform has one): a second worker then costs no second import."""
+    if shared and "forkserver" in multiprocessing.get_all_start_methods():
+        context = multiprocessing.get_context("forkserver")
+        context.set_forkserver_preload(list(shared))  # heeded when this process starts its server
+        return context
+    return multiprocessing.get_context("spawn")
+
+
+def _pool(jobs: int, modules: tuple[str, ...] = (), shared: bool = False) -> ProcessPoolExecutor:
+    return ProcessPoolExecutor(max_workers=jobs, mp_context=_context(tuple(modules) if shared else ()),
                                initializer=_watch_parent, initargs=(os.getpid(), tuple(modules)))
 
 
-def start(jobs: int, modules: tuple[str, ...] = ()) -> ProcessPoolExecutor:
+def start(jobs: int, modules: tuple[str, ...] = (), shared: bool = False) -> ProcessPoolExecutor:
     """A pool of ``jobs`` workers started now (each submission of a no-op starts one more worker
     while none is idle), importing ``modules`` while the caller goes on; pass it to
     :func:`run_all`, which shuts it down.  A caller that stops before :func:`run_all` calls
-    :func:`stop`."""
-    pool = _pool(jobs, modules)
+    :func:`stop`.  ``shared``: the workers are forked from a server that imports ``modules``
+    once for all of them (and for later pools of this process)."""
+    pool = _pool(jobs, modules, shared)
     for _ in range(jobs):
         pool.submit(_ready)
     return pool
