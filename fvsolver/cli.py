@@ -112,20 +112,24 @@ def _say(args, text: str) -> None:
 
 
 def _run(args) -> int:
-    from fvsolver.outputs.painter import Painter
+    import contextlib
 
-    with Painter() as painter:  # a helper process imports the plotting while this one sets up and steps
+    from fvsolver.outputs.painter import Painter, idle_core
+
+    # on a free core, a helper process imports the plotting while this one sets up and steps
+    with Painter() if idle_core() else contextlib.nullcontext() as painter:
         return _run_case(args, painter)
 
 
 def _run_case(args, painter) -> int:
     from fvsolver.case import load_case
-    from fvsolver.pipeline import run
 
     if args.resume is not None and args.out is not None and args.out.resolve() != args.resume.resolve():
         raise CaseError(f"--resume {args.resume} --out {args.out}: a resumed run continues in its own folder; "
                         "leave out --out (or copy the folder first and resume the copy)")
-    case = load_case(args.case)
+    case = load_case(args.case)  # a case-file error is reported before the solver is imported
+    from fvsolver.pipeline import run
+
     out = args.resume or args.out or Path("results") / args.case.stem
     if args.resume is None and not args.overwrite:
         out = _fresh_folder(args, out)
