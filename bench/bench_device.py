@@ -45,11 +45,12 @@ from fvsolver.case.loader import Case, _freeze, validate_data  # noqa: E402
 from fvsolver.stepper import TimeStepper  # noqa: E402
 
 DEMO = ROOT / "cases" / "demo.toml"
+RUNNING = ROOT / "cases" / "running_device.toml"
 MESH_KEYS = ("glass_cells", "cap_cells", "polar_cells", "neck_cells")
 
 
-def demo_case(factor: int, seconds: float) -> Case:
-    data = tomllib.loads(DEMO.read_text())
+def demo_case(factor: int, seconds: float, path: Path = DEMO) -> Case:
+    data = tomllib.loads(path.read_text())
     for k in MESH_KEYS:
         data["mesh"][k] *= factor
     data["time"]["end"] = seconds
@@ -86,12 +87,23 @@ def median_ms(fn, repeats: int) -> tuple[float, object]:
 FLOOR_ORDERINGS = ("MMD_AT_PLUS_A", "MMD_ATA", "COLAMD")
 
 
-def floor_costs(J, repeats: int) -> dict:
-    """Bare splu of the bordered Jacobian with each ordering (with and without SymmetricMode):
-    the cheapest factorisation and solve, ms (median of ``repeats`` each)."""
+def floor_costs(J, repeats: int, order=None) -> dict:
+    """Bare splu of the bordered Jacobian with each ordering (with and without SymmetricMode), and
+    with fvsolver's kept ordering ``order`` applied beforehand: the cheapest factorisation and
+    solve, ms (median of ``repeats`` each)."""
     A = fv_linear._system(J)
+    # the same rows scaled as fvsolver scales them (weak diagonals lifted): without it SuperLU pivots
+    # off the diagonal on the bordered rows and the bare factor fills up to 3 times more
+    rho = fv_linear.row_scale(A)
+    if rho is not None:
+        A = A.__class__((A.data * rho[A.indices], A.indices, A.indptr), shape=A.shape)
     b = np.random.default_rng(1).normal(size=A.shape[0])
     best = None
+    if order is not None and len(order) == A.shape[0]:
+        P = A[order][:, order].tocsc()
+        t_f, lu = median_ms(lambda: spla.splu(P, **fv_linear._PRE_ORDERED), repeats)
+        t_s, _ = median_ms(lambda: lu.solve(b), max(repeats, 5))
+        best = dict(ordering="fvsolver's", factor_ms=t_f, solve_ms=t_s, fill=int(lu.L.nnz + lu.U.nnz))
     for ordering in FLOOR_ORDERINGS:
         for symmetric in (False, True):
             kw = dict(permc_spec=ordering)
@@ -109,8 +121,8 @@ def floor_costs(J, repeats: int) -> dict:
     return best
 
 
-def bench(factor: int, seconds: float, repeats: int) -> dict:
-    setup = build(demo_case(factor, seconds))
+def bench(factor: int, seconds: float, repeats: int, path: Path = DEMO) -> dict:
+    setup = build(demo_case(factor, seconds, path))
     problem = setup.problem
     stepper = TimeStepper(problem, setup.initial, 0.0, seconds, setup.options)
     evaluate = Timed(problem.evaluate)
@@ -129,17 +141,19 @@ def bench(factor: int, seconds: float, repeats: int) -> dict:
     ev = problem.evaluate(stepper.y, stepper.t)
     _, dm = problem.capacity(stepper.y)
     J = problem.jacobian(1.5, stepper.last_dt, dm, ev)
-    formed = J.tocsr().tocsc()
-    t_formed, lu_formed = median_ms(lambda: spla.splu(formed, **fv_linear.SPLU_OPTIONS), repeats)
+    # the low-rank blocks formed densely take minutes to factorise beyond about 10k cells: left out there
+    formed = J.tocsr().tocsc() if problem.n_cells < 10000 else None
+    t_formed, lu_formed = (median_ms(lambda: spla.splu(formed, **fv_linear.SPLU_OPTIONS), repeats)
+                           if formed is not None else (float("nan"), None))
     t_bordered, f_bordered = median_ms(lambda: fv_linear.factorise(J), repeats)
     keeper = fv_linear.Factoriser()
     keeper(J)
     t_kept, f_kept = median_ms(lambda: keeper(J), repeats)
     b = np.random.default_rng(0).normal(size=problem.n)
-    x_formed = lu_formed.solve(b)
+    x_formed = lu_formed.solve(b) if lu_formed is not None else f_bordered.solve(b)
     diff = float(np.max(np.abs(f_kept.solve(b) - x_formed)) / np.max(np.abs(x_formed)))
     assert diff < 1e-8, diff
-    floor = floor_costs(J, repeats)
+    floor = floor_costs(J, repeats, keeper._order)
     newton_per_step = c.newton_iterations / c.steps
     floor_ms = floor["factor_ms"] + newton_per_step * floor["solve_ms"]
     ms_per_step = 1e3 * stepping / c.steps
@@ -147,11 +161,11 @@ def bench(factor: int, seconds: float, repeats: int) -> dict:
         ms_per_step=ms_per_step, floor_ms_per_step=floor_ms, ratio_to_floor=ms_per_step / floor_ms,
         newton_per_step=newton_per_step, newton_failures=c.newton_failures, floor=floor,
         orderings=keeper_run.orderings, time_to_end_s=stepper.t,
-        cells=problem.n_cells, unknowns=problem.n, wall_faces=len(problem.inner),
+        case=path.stem, cells=problem.n_cells, unknowns=problem.n, wall_faces=len(problem.inner),
         steps=c.steps, newton=c.newton_iterations, factorisations=c.factorisations,
         stepping=stepping, t_eval=evaluate.seconds, t_fact=factorise.seconds,
         t_formed=t_formed, t_bordered=t_bordered, t_kept=t_kept,
-        fill_formed=int(lu_formed.L.nnz + lu_formed.U.nnz), fill_bordered=f_bordered.fill,
+        fill_formed=int(lu_formed.L.nnz + lu_formed.U.nnz) if lu_formed is not None else 0, fill_bordered=f_bordered.fill,
         fill_kept=f_kept.fill, diff=diff,
     )
 
@@ -162,6 +176,8 @@ def main(argv=None) -> int:
     ap.add_argument("--seconds", type=float, default=10.0, help="simulated time before the Jacobian is taken")
     ap.add_argument("--repeats", type=int, default=5)
     ap.add_argument("--json", type=Path, default=None, metavar="FILE", help="also write the per-size fields as JSON")
+    ap.add_argument("--no-running", action="store_true",
+                    help="leave out the running-device demo's row (cases/running_device.toml, its first --seconds)")
     args = ap.parse_args(argv)
     bench(1, 0.2, 1)  # warm-up: numba compiles its kernels on the first run
     rows = []
@@ -169,40 +185,44 @@ def main(argv=None) -> int:
         r = bench(f, args.seconds, args.repeats)
         rows.append(r)
         print(f"factor {f}: {r['cells']} cells done", file=sys.stderr, flush=True)
+    if not args.no_running:
+        bench(1, 0.2, 1, RUNNING)
+        rows.append(bench(1, args.seconds, args.repeats, RUNNING))
+        print(f"running device: {rows[-1]['cells']} cells done", file=sys.stderr, flush=True)
     print("Factorisation of the device Jacobian at t = %g s (median of %d, ms; fill = nnz(L) + nnz(U))"
           % (args.seconds, args.repeats))
     print()
-    print("| cells | wall faces | formed ms | bordered ms | kept ms | formed / kept | bordered / kept "
+    print("| case | cells | wall faces | formed ms | bordered ms | kept ms | formed / kept | bordered / kept "
           "| fill formed | fill kept | max rel. diff of solves |")
-    print("|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|")
+    print("|---|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|")
     for r in rows:
-        print(f"| {r['cells']} | {r['wall_faces']} | {r['t_formed']:.1f} | {r['t_bordered']:.1f} | "
+        print(f"| {r['case']} | {r['cells']} | {r['wall_faces']} | {r['t_formed']:.1f} | {r['t_bordered']:.1f} | "
               f"{r['t_kept']:.1f} | {r['t_formed'] / r['t_kept']:.2f} | {r['t_bordered'] / r['t_kept']:.2f} | "
               f"{r['fill_formed']:,} | {r['fill_kept']:,} | {r['diff']:.1e} |")
     print()
     print("The run to t = %g s (stepping time; shares of it)" % args.seconds)
     print()
-    print("| cells | steps | Newton it/step | factorisations/step | stepping s | evaluations | factorisations | rest |")
-    print("|---:|---:|---:|---:|---:|---:|---:|---:|")
+    print("| case | cells | steps | Newton it/step | factorisations/step | stepping s | evaluations | factorisations | rest |")
+    print("|---|---:|---:|---:|---:|---:|---:|---:|---:|")
     for r in rows:
         s = r["stepping"]
-        print(f"| {r['cells']} | {r['steps']} | {r['newton'] / r['steps']:.1f} | "
+        print(f"| {r['case']} | {r['cells']} | {r['steps']} | {r['newton'] / r['steps']:.1f} | "
               f"{r['factorisations'] / r['steps']:.1f} | {s:.2f} | {r['t_eval'] / s:.0%} | "
               f"{r['t_fact'] / s:.0%} | {1 - (r['t_eval'] + r['t_fact']) / s:.0%} |")
     print()
     print("Cost per step against its floor (one bare splu of the same Jacobian, best ordering, plus the "
           "run's Newton iterations per step in bare solves)")
     print()
-    print("| cells | ms/step | floor ms/step | ratio to floor | Newton it/step | Newton failures | orderings "
+    print("| case | cells | ms/step | floor ms/step | ratio to floor | Newton it/step | Newton failures | orderings "
           "| floor ordering | floor factor ms | floor solve ms |")
-    print("|---:|---:|---:|---:|---:|---:|---:|---|---:|---:|")
+    print("|---|---:|---:|---:|---:|---:|---:|---:|---|---:|---:|")
     for r in rows:
         fl = r["floor"]
-        print(f"| {r['cells']} | {r['ms_per_step']:.1f} | {r['floor_ms_per_step']:.2f} | {r['ratio_to_floor']:.1f} | "
+        print(f"| {r['case']} | {r['cells']} | {r['ms_per_step']:.1f} | {r['floor_ms_per_step']:.2f} | {r['ratio_to_floor']:.1f} | "
               f"{r['newton_per_step']:.1f} | {r['newton_failures']} | {r['orderings']} | {fl['ordering']} | "
               f"{fl['factor_ms']:.2f} | {fl['solve_ms']:.3f} |")
     if args.json is not None:
-        keys = ("cells", "ms_per_step", "floor_ms_per_step", "ratio_to_floor", "newton_per_step", "newton_failures",
+        keys = ("case", "cells", "ms_per_step", "floor_ms_per_step", "ratio_to_floor", "newton_per_step", "newton_failures",
                 "unknowns", "steps", "orderings", "factorisations", "fill_kept", "time_to_end_s")
         out = [{k: r[k] for k in keys} | {"floor": r["floor"]} for r in rows]
         args.json.write_text(json.dumps({"seconds": args.seconds, "sizes": out}, indent=2) + "\n")

@@ -1,7 +1,7 @@
 """Wall time of a climate envelope run three ways, side by side on this machine.
 
-    python bench/bench_envelope.py [--case cases/demo.toml] [--temperature 288.15:308.15:10]
-                                   [--humidity 0.3:0.98:10] [--modes serial,jobs2,dask2]
+    python bench/bench_envelope.py [--case cases/demo.toml] [--temperature "linspace(288.15,308.15,10)"]
+                                   [--humidity "linspace(0.3,0.98,10)"] [--modes serial,jobs2,dask2]
                                    [--out bench_envelope_results]
 
 Modes: ``serial`` (one run after the other in this process), ``jobsN`` (N local worker
@@ -47,8 +47,8 @@ def run_mode(mode: str, case, temperatures, humidities, out: Path) -> tuple[floa
 def main() -> int:
     p = argparse.ArgumentParser(description=__doc__.split("\n")[0])
     p.add_argument("--case", default="cases/demo.toml")
-    p.add_argument("--temperature", default="288.15:308.15:10")
-    p.add_argument("--humidity", default="0.3:0.98:10")
+    p.add_argument("--temperature", default="linspace(288.15,308.15,10)")
+    p.add_argument("--humidity", default="linspace(0.3,0.98,10)")
     p.add_argument("--modes", default="serial,jobs2,dask2")
     p.add_argument("--out", type=Path, default=Path("bench_envelope_results"))
     a = p.parse_args()

@@ -93,6 +93,8 @@ def _parser() -> argparse.ArgumentParser:
             s.add_argument("prefix", nargs="?", default=None, help="only keys starting with this (e.g. room)")
         if name == "new":
             s.add_argument("file", type=Path, help="the case file to write (refused if it exists)")
+            s.add_argument("--whole-device", action="store_true",
+                           help="a whole running device (head, tube, body, pool, dip cycle) instead of a head")
         if name == "revolve":
             s.add_argument("folder", type=Path, help="output folder of a run (holding fields.pvd)")
             s.add_argument("--sectors", type=int, default=36, help="angular steps (default 36)")
@@ -378,7 +380,7 @@ def _new(args) -> int:
     if args.file.exists():
         raise CaseError(f"new {args.file}: the file exists (expected a new file name); choose another name")
     args.file.parent.mkdir(parents=True, exist_ok=True)
-    atomic_write_text(args.file, starter_case())
+    atomic_write_text(args.file, starter_case(whole_device=args.whole_device))
     _say(args, f"wrote {args.file}: edit it, check it with `fvsolver check {args.file}`, run it with "
                f"`fvsolver run {args.file}`")
     return EXIT_OK

@@ -6,7 +6,9 @@ and compares
 * the outcome exactly: ``status``, ``target_reached`` and the kinds of stall reason (the room is
   too humid, the cap dried out, heat reaches the head, the end time came first);
 * the key results within a relative tolerance: the time to target, the target and largest
-  pressure differences, the largest internal pressure;
+  pressure differences, the largest internal pressure; for a running device also its outcome
+  (exactly), the first tip, the settled and the last period, the column at the tip, the water
+  per dip and the evaporative cooling;
 * temperatures within an absolute tolerance in K: the extremes of the field and of the glass;
 * the histories, interpolated in time onto the baseline's steps over the span both cover: the
   pressure difference within a tolerance relative to the baseline's largest value (or the
@@ -33,9 +35,12 @@ import numpy as np
 
 from fvsolver.errors import CaseError
 
-RELATIVE_KEYS = ("time_to_target_s", "target_pressure_drop_pa", "max_pressure_drop_pa", "max_internal_pressure_pa")
+RELATIVE_KEYS = ("time_to_target_s", "target_pressure_drop_pa", "max_pressure_drop_pa", "max_internal_pressure_pa",
+                 # a running device's cycle (absent from both summaries otherwise, then skipped)
+                 "first_tip_s", "period_s", "last_period_s", "column_at_tip_m", "water_per_dip_kg",
+                 "evaporative_cooling_w")
 TEMPERATURE_KEYS = ("min_temperature_k", "max_temperature_k", "max_glass_temperature_k")
-EXACT_KEYS = ("status", "target_reached")
+EXACT_KEYS = ("status", "target_reached", "outcome")
 STALL_KINDS = {"too humid": "humid room", "dried out": "cap dried out", "heat reaches the head": "heat reaches the head",
                "end time": "end time first"}
 
@@ -102,7 +107,7 @@ class Comparison:
                 "checks": [c.__dict__ for c in self.checks], "warnings": self.warnings}
 
 
-UNITS = (("_s", "s"), ("_pa", "Pa"), ("_k", "K"), ("_kg_s", "kg/s"), ("_w", "W"), ("_kg", "kg"))
+UNITS = (("_s", "s"), ("_pa", "Pa"), ("_k", "K"), ("_kg_s", "kg/s"), ("_w", "W"), ("_kg", "kg"), ("_m", "m"))
 
 
 def _split_unit(quantity: str) -> tuple[str, str]:
@@ -230,6 +235,8 @@ def compare(new: str | Path, baseline: str | Path, rtol: float = 1e-3, temperatu
     add = out.checks.append
     for key in EXACT_KEYS:
         a, b = sb.get(key), sn.get(key)
+        if key == "outcome" and a is None and b is None:
+            continue  # not a running device
         add(Check(key, a, b, None, "equal", a == b))
     kb, kn = _stall_kinds(sb.get("stall_reason")), _stall_kinds(sn.get("stall_reason"))
     add(Check("stall reason (kinds)", ", ".join(kb) or None, ", ".join(kn) or None, None, "equal", kb == kn))

@@ -21,6 +21,7 @@ from fvsolver.boundary import (BoundaryData, Convection, HeatFlux, PatchConditio
 from fvsolver.discretisation import Stencil, build_stencil
 from fvsolver.errors import CaseError
 from fvsolver.kernels import conduction as kern
+from fvsolver.kernels import surfaces as _ks
 from fvsolver.materials import REFERENCE_TEMPERATURE, Material
 from fvsolver.mesh.core import Mesh
 from fvsolver.surface_balance import SURFACE_ITERATIONS, solve_surface as _solve_surface, term_sum as _term_sum
@@ -49,6 +50,8 @@ class Evaluation:
     source_heat : float, W
     surface_conductance : (n_boundary,) W/(m2 K), k_P / delta (cell to face)
     surface_derivative : (n_boundary,) W/(m2 K), dq/dT_s of the flux terms at the surface
+    surface_terms : (n_boundary, kernels.surfaces.OUTPUTS) or None, the compiled solve's outputs
+        (mass flux, its derivatives, latent heat) on the coupled faces it solved
     """
 
     rate: np.ndarray
@@ -59,6 +62,7 @@ class Evaluation:
     source_heat: float
     surface_conductance: np.ndarray | None = None
     surface_derivative: np.ndarray | None = None
+    surface_terms: np.ndarray | None = None
 
     @property
     def heat_in(self) -> float:
@@ -182,11 +186,23 @@ class ConductionProblem:
         self._dirichlet_groups = [
             (c, f) for c, f in zip(self.boundary.conditions, self.boundary.faces) if c.kind == "temperature"
         ]
+        self._every_flux_group = self._flux_groups
+        self._compiled = None
+        self._compiled_out = None
+        self.compile_surfaces(True)
         g = np.empty(mesh.n_faces)
         if self._constant_k:
             kern.face_conductance(self._k_constant, mesh.owner, mesh.neighbour, self.stencil.dist_owner,
                                   self.stencil.dist_neighbour, self.stencil.geometry, g)
         self._g_constant = g if self._constant_k else None
+
+    def compile_surfaces(self, on: bool) -> None:
+        """Solve the coupled patches' surface balances in the compiled kernel (on, where numba's JIT
+        is on) or with their terms' NumPy ``heat_flux`` (off: the twin the tests compare with)."""
+        self._compiled = _compiled_surfaces(self._every_flux_group, self.mesh.n_boundary) if on else None
+        self._flux_groups = self._every_flux_group
+        if self._compiled is not None:
+            self._flux_groups = [(c, f) for c, f in self._every_flux_group if not _compilable(c)]
 
     # -- properties -------------------------------------------------------------------------
     def _per_cell(self, T: np.ndarray, attribute: str, context) -> np.ndarray:
@@ -262,6 +278,24 @@ class ConductionProblem:
                 foot = foot + grad[cells, 0] * st.boundary_offset[faces, 0] + grad[cells, 1] * st.boundary_offset[faces, 1]
             q[faces] = kappa[faces] * (t_s[faces] - foot)
             dq_dtp[faces] = -kappa[faces]
+        surface_terms = None
+        if self._compiled is not None:
+            # every coupled face in one compiled call (its outputs kept for the second pass of a
+            # corrected evaluation, which reuses the same surface temperatures)
+            faces = self._compiled.faces
+            if reuse is None:
+                guess = None if self._surface_guess is None else self._surface_guess[faces]
+                self._compiled_out = self._compiled.solve(kappa[faces], t_foot[faces], guess, time,
+                                                          mesh.boundary_centres, context)
+            out = self._compiled_out
+            kf, tf = kappa[faces], t_foot[faces]
+            ts, g1 = out[:, _ks.TS], out[:, _ks.DQ]
+            t_s[faces] = ts
+            g1_all[faces] = g1
+            q[faces] = kf * (ts - tf)
+            dq_dtp[faces] = kf * g1 / (kf - g1)
+            surface_terms = np.full((mesh.n_boundary, _ks.OUTPUTS), np.nan)
+            surface_terms[faces] = out
         for cond, faces in self._flux_groups:
             if not cond.terms:
                 continue
@@ -280,7 +314,7 @@ class ConductionProblem:
             g1_all[faces] = g1
             q[faces] = kf * (ts - tf)
             dq_dtp[faces] = kf * g1 / (kf - g1)
-        self._last_surface = (kappa, g1_all)
+        self._last_surface = (kappa, g1_all, surface_terms)
         return t_s, q, dq_dtp
 
     def evaluate(self, T: np.ndarray, time: float, context=None) -> Evaluation:
@@ -325,8 +359,8 @@ class ConductionProblem:
             power = _evaluate(s.power_density, centres, time) * mesh.cell_volumes[sel]
             rate[sel] += power
             source_heat += float(power.sum())
-        kappa, g1 = self._last_surface
-        return Evaluation(rate, bjac, g, t_s, boundary_heat, source_heat, kappa, g1)
+        kappa, g1, surface_terms = self._last_surface
+        return Evaluation(rate, bjac, g, t_s, boundary_heat, source_heat, kappa, g1, surface_terms)
 
     def jacobian(self, alpha0: float, dt: float, dm: np.ndarray, ev: Evaluation) -> sp.csr_matrix:
         """J = alpha0 dm/dT - dt dF/dT (two-point part; the deferred correction is left out)."""
@@ -377,6 +411,49 @@ class ConductionProblem:
     def balance_groups(self) -> dict[str, slice]:
         """Which entries of the state make up each conserved total."""
         return {"energy": slice(0, self.n)}
+
+
+def _compilable(cond) -> bool:
+    """A patch whose one term hands its parameters to the compiled surface solve."""
+    return len(cond.terms) == 1 and hasattr(cond.terms[0], "surface_parameters")
+
+
+@dataclass(frozen=True)
+class _CompiledSurfaces:
+    """The coupled patches solved together by ``kernels.surfaces.solve_surfaces``."""
+
+    groups: tuple          # (term, faces) per patch
+    faces: np.ndarray      # every face, in the groups' order
+    kinds: np.ndarray
+    fluid: np.ndarray
+    water: np.ndarray
+    water_latent: np.ndarray
+
+    def solve(self, kappa, t_foot, guess, time, centres, context) -> np.ndarray:
+        params = np.concatenate([term.surface_parameters(f, centres[f], context) for term, f in self.groups])
+        out = np.empty((self.faces.size, _ks.OUTPUTS))
+        start = np.zeros(self.faces.size) if guess is None else np.ascontiguousarray(guess)
+        _ks.solve_surfaces(self.kinds, params, np.ascontiguousarray(kappa), np.ascontiguousarray(t_foot), start,
+                           self.fluid, self.water, self.water_latent, out)
+        return out
+
+
+def _compiled_surfaces(flux_groups, n_boundary: int):
+    """The compiled solve of the coupled patches, or None (none there, or numba's JIT switched off:
+    then the terms' own NumPy ``heat_flux`` are solved by ``surface_balance.solve_surface``)."""
+    from fvsolver.kernels import COMPILED
+
+    groups = [(c.terms[0], f) for c, f in flux_groups if _compilable(c)]
+    if not groups or not COMPILED:
+        return None
+    fluid = np.zeros(_ks.FLUID_CONSTANTS)
+    for term, _ in groups:
+        if hasattr(term, "fluid_constants"):
+            fluid = np.ascontiguousarray(term.fluid_constants(), dtype=np.float64)
+    kinds = np.concatenate([np.full(len(f), term.surface_kind, dtype=np.int64) for term, f in groups])
+    water, water_latent = _ks.water_constants()
+    return _CompiledSurfaces(tuple(groups), np.concatenate([f for _, f in groups]), kinds, fluid, water,
+                             water_latent)
 
 
 def heat_flux_vectors(problem: ConductionProblem, T: np.ndarray, ev: Evaluation) -> np.ndarray:

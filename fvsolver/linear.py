@@ -128,7 +128,48 @@ def _splu(matrix: sp.csc_matrix, options: dict) -> spla.SuperLU:
         ) from exc
 
 
-def _system(matrix: sp.spmatrix | LowRankUpdate) -> sp.csc_matrix:
+class Assembler:
+    """Sums (row, column, value) triplets into a canonical CSC matrix (sorted, duplicates summed,
+    zeros kept as explicit entries). The sort of the structure is kept: a call with the same rows
+    and columns as the last one costs one ``bincount`` of the values."""
+
+    def __init__(self):
+        self._rows = self._cols = self._shape = None
+
+    def __call__(self, rows: np.ndarray, cols: np.ndarray, values: np.ndarray, shape: tuple[int, int]) -> sp.csc_matrix:
+        if not (shape == self._shape and rows.shape == self._rows.shape and np.array_equal(rows, self._rows)
+                and np.array_equal(cols, self._cols)):
+            keys = np.asarray(cols, dtype=np.int64) * shape[0] + np.asarray(rows, dtype=np.int64)
+            unique, self._inverse = np.unique(keys, return_inverse=True)
+            c, self._indices = np.divmod(unique, shape[0])
+            self._indptr = np.zeros(shape[1] + 1, dtype=np.int64)
+            np.cumsum(np.bincount(c, minlength=shape[1]), out=self._indptr[1:])
+            self._rows, self._cols, self._shape = rows.copy(), cols.copy(), shape
+        data = np.bincount(self._inverse, weights=values, minlength=len(self._indices))
+        return sp.csc_matrix((data, self._indices, self._indptr), shape=shape)
+
+
+def _triplets(a) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(rows, cols, values) of a sparse matrix's stored entries (explicit zeros included)."""
+    if sp.isspmatrix_csr(a) or sp.isspmatrix_csc(a):
+        major = np.repeat(np.arange(len(a.indptr) - 1), np.diff(a.indptr))
+        return (major, a.indices, a.data) if sp.isspmatrix_csr(a) else (a.indices, major, a.data)
+    c = a.tocoo()
+    return c.row, c.col, c.data
+
+
+def _system(matrix: sp.spmatrix | LowRankUpdate, assemble: Assembler | None = None) -> sp.csc_matrix:
+    if isinstance(matrix, LowRankUpdate) and assemble is not None:
+        # the bordered system [[A, U], [W^T, -I]] from its pieces' triplets, by a kept assembly
+        n, k = matrix.shape[0], matrix.rank
+        parts = [_triplets(matrix.base)]
+        r, c, v = _triplets(matrix.left)
+        parts.append((r, c + n, v))
+        r, c, v = _triplets(matrix.right)
+        parts.append((c + n, r, v))
+        parts.append((np.arange(n, n + k), np.arange(n, n + k), -np.ones(k)))
+        rows, cols, vals = (np.concatenate(x) for x in zip(*parts))
+        return assemble(rows, cols, vals, (n + k, n + k))
     a = matrix.bordered() if isinstance(matrix, LowRankUpdate) else sp.csc_matrix(matrix)
     a.sum_duplicates()  # canonical: sorted indices, so equal patterns compare equal
     return a
@@ -202,6 +243,8 @@ class Factoriser:
         self._pattern: sp.csc_matrix | None = None  # the union pattern (values unused)
         self._keys: np.ndarray | None = None
         self._order: np.ndarray | None = None
+        self._permuted = None  # (where each entry of the pattern goes, indices, indptr) under the order
+        self._assemble = Assembler()
         self.orderings = 0  # fresh orderings computed (a counter for tests and benchmarks)
 
     def state(self) -> dict | None:
@@ -216,6 +259,7 @@ class Factoriser:
         self._pattern = sp.csc_matrix((np.zeros(len(indices)), np.asarray(indices), np.asarray(indptr)), shape=(m, m))
         self._keys = _keys(self._pattern)
         self._order = np.asarray(order)
+        self._permuted = None
 
     def _same_pattern(self, a: sp.csc_matrix) -> bool:
         p = self._pattern
@@ -231,14 +275,26 @@ class Factoriser:
         inside[inside] = self._keys[pos[inside]] == keys[inside]
         if not inside.all():
             self._keys = np.union1d(self._keys, keys)
-            self._pattern, self._order = _from_keys(self._keys, a.shape), None
+            self._pattern, self._order, self._permuted = _from_keys(self._keys, a.shape), None, None
             pos = np.searchsorted(self._keys, keys)
         data = np.zeros(len(self._keys))
         data[pos] = a.data
         return sp.csc_matrix((data, self._pattern.indices, self._pattern.indptr), shape=a.shape)
 
+    def _pre_ordered(self, a: sp.csc_matrix) -> sp.csc_matrix:
+        """``a[q][:, q]`` for the kept order q, by a gather of a's values (the pattern's permutation
+        is worked out once)."""
+        if self._permuted is None:
+            q = self._order
+            tag = sp.csc_matrix((np.arange(1.0, a.nnz + 1.0), a.indices, a.indptr), shape=a.shape)
+            b = tag[q][:, q].tocsc()
+            b.sort_indices()
+            self._permuted = (b.data.astype(np.int64) - 1, b.indices, b.indptr)
+        where, indices, indptr = self._permuted
+        return sp.csc_matrix((a.data[where], indices, indptr), shape=a.shape)
+
     def __call__(self, matrix: sp.spmatrix | LowRankUpdate) -> Factor:
-        a = _system(matrix)
+        a = _system(matrix, self._assemble)
         n = matrix.shape[0]
         if self._pattern is not None and a.shape == self._pattern.shape and not self._same_pattern(a):
             a = self._on_pattern(a)
@@ -246,10 +302,10 @@ class Factoriser:
         if rho is not None:  # the same pattern, rows scaled in place (explicit zeros kept)
             a = sp.csc_matrix((a.data * rho[a.indices], a.indices, a.indptr), shape=a.shape)
         if self._order is not None and self._same_pattern(a):
-            q = self._order
-            return Factor(_splu(a[q][:, q].tocsc(), _PRE_ORDERED), n, q, rho)
+            return Factor(_splu(self._pre_ordered(a), _PRE_ORDERED), n, self._order, rho)
         lu = _splu(a, SPLU_OPTIONS)
         self.orderings += 1
+        self._permuted = None
         if not self._same_pattern(a):
             self._pattern = sp.csc_matrix((np.zeros(a.nnz), a.indices.copy(), a.indptr.copy()), shape=a.shape)
             self._keys = _keys(a)

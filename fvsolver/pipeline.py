@@ -271,7 +271,7 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
         reason = f"{getattr(exc, 'reason', 'stopped by the user')} at t = {stepper.t:.6g} s (continue with --resume)"
         save_checkpoint()
     if cycle is not None and status == "complete":
-        cycle.finish(stepper.t, monitor, lambda: monitor.stall_reason(stepper.y, stepper.t))
+        cycle.finish(stepper.t, monitor, lambda: monitor.stall_reason(stepper.y, stepper.t), stepper.y)
     summary = _summary(case, setup, stepper, monitor, worst, status, reason)
     if cycle is not None:
         summary.update(cycle.summary())
@@ -400,7 +400,7 @@ def _start_figures(folder: Path, case, setup, summary, history, fields, cycles=(
             max_pressure_drop_pa=summary.get("max_pressure_drop_pa"))))
     if cycles:
         figures.append(("cycles.png", draw("cycle_plot", history, list(cycles), folder / "cycles.png",
-                                           title=plain_title(case["title"]))))
+                                           title=plain_title(case["title"]), subtitle=scenario)))
     return scenario, figures
 
 

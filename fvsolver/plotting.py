@@ -575,8 +575,10 @@ def _with_unit(key: str, units: Mapping | None) -> str:
 
 
 def sweep_plot(rows: Sequence[Mapping], keys: Sequence[str], path: Path, title: str = "",
-               units: Mapping[str, str] | None = None) -> None:
-    """Time to target against the first swept key, one line per combination of the others.
+               units: Mapping[str, str] | None = None, result: str = "time_to_target_s",
+               result_label: str = "time to target (s)", missing_label: str = "not reached") -> None:
+    """Time to target (or ``result``, e.g. a running device's last period) against the first
+    swept key, one line per combination of the others.
 
     Runs that did not reach the target are drawn as open markers on the top edge of the panel
     (labelled "not reached"), so a stalled climate stands out instead of vanishing.
@@ -592,14 +594,14 @@ def sweep_plot(rows: Sequence[Mapping], keys: Sequence[str], path: Path, title: 
     groups: dict[tuple, list[Mapping]] = {}
     for r in rows:
         groups.setdefault(tuple(r[k] for k in others), []).append(r)
-    reached = [r["time_to_target_s"] for r in rows if r["time_to_target_s"] is not None]
+    reached = [r.get(result) for r in rows if r.get(result) is not None]
     top = 1.08 * max(reached) if reached else 1.0
     fig, ax = _subplots(figsize=(7.0, 4.2), layout="constrained")
     ax.grid(True, lw=0.4, alpha=0.45)
     for label, members in groups.items():
         members = sorted(members, key=lambda r: r[first])
         x = np.array([float(r[first]) for r in members])
-        y = np.array([np.nan if r["time_to_target_s"] is None else float(r["time_to_target_s"]) for r in members])
+        y = np.array([np.nan if r.get(result) is None else float(r.get(result)) for r in members])
         name = ", ".join(f"{k.split('.')[-1]} = {v:g}" + (f" {units[k]}" if units and units.get(k) else "")
                          if isinstance(v, int | float) else f"{k.split('.')[-1]} = {v}"
                          for k, v in zip(others, label)) or None
@@ -610,11 +612,11 @@ def sweep_plot(rows: Sequence[Mapping], keys: Sequence[str], path: Path, title: 
                     mec=line.get_color())
     if len(reached) < len(rows):
         ax.axhline(top, color="0.5", lw=0.6, ls=":")
-        ax.annotate("not reached", (0.01, top), xycoords=("axes fraction", "data"), va="bottom",
+        ax.annotate(missing_label, (0.01, top), xycoords=("axes fraction", "data"), va="bottom",
                     fontsize=7.5, color="0.35")
     ax.set_ylim(0.0, 1.12 * top)
     ax.set_xlabel(_with_unit(first, units))
-    ax.set_ylabel("time to target (s)")
+    ax.set_ylabel(result_label)
     if title:
         ax.set_title(title, fontsize=9.5)
     if others:
@@ -697,7 +699,8 @@ def envelope_plot(temperatures: np.ndarray, humidities: np.ndarray, values: np.n
     _save(fig, path)
 
 
-def cycle_plot(history: Mapping[str, np.ndarray], cycles: Sequence[Mapping], path: Path, title: str = "") -> None:
+def cycle_plot(history: Mapping[str, np.ndarray], cycles: Sequence[Mapping], path: Path, title: str = "",
+               subtitle: str = "") -> None:
     """A running device: the pressure difference over the run with its tips marked, and the
     period of each cycle; write a PNG.
 
@@ -707,6 +710,7 @@ def cycle_plot(history: Mapping[str, np.ndarray], cycles: Sequence[Mapping], pat
     cycles : rows of cycles.csv (``"tip_time_s"``, ``"period_s"``, ``"pressure_drop_at_tip_pa"``)
     path : the PNG to write (atomically)
     title : shown above the panels
+    subtitle : the computed scenario, shown under the title
     """
     t = np.asarray(history["time_s"], dtype=float)
     fig, (top, bottom) = _subplots(2, 1, figsize=(8.0, 6.0), height_ratios=(2.0, 1.0), constrained_layout=True)
@@ -722,7 +726,8 @@ def cycle_plot(history: Mapping[str, np.ndarray], cycles: Sequence[Mapping], pat
     top.set_ylabel("pressure difference (Pa)")
     top.set_xlabel("time (s)")
     top.grid(alpha=0.3)
-    top.legend(loc="lower right", fontsize=8)
+    # above the panel: inside it, any corner covers some cycle's rise or fall
+    top.legend(loc="lower left", bbox_to_anchor=(0.0, 1.01), ncol=3, fontsize=8, frameon=False)
     periods = [(c["tip_time_s"], c["period_s"]) for c in cycles if c.get("period_s")]
     if periods:
         n = np.arange(2, len(periods) + 2)
@@ -735,8 +740,7 @@ def cycle_plot(history: Mapping[str, np.ndarray], cycles: Sequence[Mapping], pat
     bottom.set_ylabel("period (s)")
     bottom.grid(alpha=0.3)
     bottom.yaxis.set_major_formatter(matplotlib.ticker.ScalarFormatter(useOffset=False))
-    if title:
-        fig.suptitle(title, fontsize=10)
+    _titles(fig, title, subtitle)
     _save(fig, path)
 
 

@@ -25,6 +25,10 @@ from fvsolver.kernels import conduction as kern
 from fvsolver.linear import Factoriser, factorise, solve
 
 SCHEMES = ("backward_euler", "bdf2")
+# a Newton update this small (in tolerance units: K for temperatures) is the round-off of the unknowns
+ROUND_OFF_UPDATE = 1e-12
+# an iteration that contracts its update by less than this refactorises the Jacobian
+REFACTOR_CONTRACTION = 0.3
 
 
 @dataclass
@@ -53,6 +57,11 @@ class StepperOptions:
     min_step, max_step : float, s
     max_growth : float, largest ratio of successive steps (BDF2 stays zero-stable below 2.4)
     newton_tolerance : float, absolute change of the unknowns that ends the Newton loop
+    newton_fraction : float, adaptive steps: the Newton loop also ends once its estimated remaining
+        error (the last update times rho / (1 - rho), rho its observed contraction) is below this
+        fraction of the step's error tolerance on every unknown
+    balance_tolerance : float, the Newton loop ends only once every conserved total balances over
+        the step to this relative error (non-affine problems)
     max_newton_iterations : int
     """
 
@@ -65,12 +74,15 @@ class StepperOptions:
     max_step: float = math.inf
     max_growth: float = 2.0
     newton_tolerance: float = 1e-9
+    newton_fraction: float = 1e-2
+    balance_tolerance: float = 1e-10
     max_newton_iterations: int = 30
 
     def validate(self, where: str = "numerics") -> None:
         if self.scheme not in SCHEMES:
             raise CaseError(f"{where}.scheme: got {self.scheme!r}, expected one of {SCHEMES}")
-        for name in ("initial_step", "tolerance", "min_step", "max_step", "newton_tolerance"):
+        for name in ("initial_step", "tolerance", "min_step", "max_step", "newton_tolerance", "newton_fraction",
+                     "balance_tolerance"):
             v = getattr(self, name)
             if not (isinstance(v, (int, float)) and v > 0):
                 raise CaseError(f"{where}.{name}: got {v!r}, expected a positive number")
@@ -259,7 +271,9 @@ class TimeStepper:
         h = self._history
         if len(h.t) < 2:
             return h.y[0].copy()
-        pts = min(len(h.t), self.order + 1)
+        # a BDF2 run interpolates quadratically also over a step taken first-order (an inventory
+        # drying out): the linear interpolant of a long step misplaces events inside it
+        pts = min(len(h.t), 3 if self.options.scheme == "bdf2" else self.order + 1)
         ts, ys = h.t[:pts], h.y[:pts]
         out = np.zeros_like(ys[0])
         for i in range(pts):
@@ -296,6 +310,29 @@ class TimeStepper:
         w = dt / self._dts[0]
         return 2, (1 + 2 * w) / (1 + w), -(1 + w), w * w / (1 + w)
 
+    def _history_part(self, order, a0, a1, a2):
+        """The step's coefficients and history a1 m_n + a2 m_n-1, first-order where BDF2 has no
+        solution inside the domain.
+
+        BDF2's history part -(a1 m_n + a2 m_n-1) / a0 of an unknown that must stay >= 0 (an
+        inventory drying out) can itself be negative: no solution >= 0 exists then, and the step is
+        taken first-order (backward Euler keeps it >= 0). A negative part below the round-off of
+        those unknowns' total (a dried face decaying towards zero) is set to zero instead.
+        """
+        h = self._history
+        hist = a1 * h.m[0] + (a2 * h.m[1] if a2 else 0.0)
+        keep = getattr(self.problem, "nonnegative", None)
+        if order == 2 and keep is not None and len(keep):
+            part = hist[keep]
+            excess = float(part[part > 0.0].sum())
+            if excess > 0.0:
+                if excess <= 1e-16 * float(np.abs(h.m[0][keep]).sum()):
+                    hist[keep] = np.minimum(part, 0.0)
+                else:
+                    order, a0, a1, a2 = 1, 1.0, -1.0, 0.0
+                    hist = a1 * h.m[0]
+        return order, a0, a1, a2, hist
+
     def _predict(self, dt: float, order: int):
         """Extrapolated state and the factor turning |corrector - predictor| into the error."""
         h = self._history
@@ -304,7 +341,9 @@ class TimeStepper:
                 ev = self.problem.evaluate(self.y, self.t)
                 self.counters.evaluations += 1
                 _, dm = self.problem.capacity(self.y)
-                self._f0 = ev.rate / dm
+                dm = np.broadcast_to(dm, ev.rate.shape)
+                # an unknown without content (a lumped state held fixed) is not extrapolated
+                self._f0 = np.divide(ev.rate, dm, out=np.zeros_like(ev.rate), where=dm != 0.0)
             return self.y + dt * self._f0, 0.5
         h0, y0, y1 = dt, h.y[0], h.y[1]
         h1 = self._dts[0]
@@ -315,13 +354,15 @@ class TimeStepper:
         y2 = h.y[2]
         t = h.t[0] + h0
         ts = (h.t[0], h.t[1], h.t[2])
-        pred = np.zeros_like(y0)
-        for i, yi in enumerate((y0, y1, y2)):
+        # y0 + sum l_i (y_i - y0) (the weights sum to one): an unknown that has not changed is
+        # extrapolated exactly, without a rounding Newton would then have to undo
+        pred = y0.copy()
+        for i, yi in enumerate((y1, y2), start=1):
             li = 1.0
             for j in range(3):
                 if j != i:
                     li *= (t - ts[j]) / (ts[i] - ts[j])
-            pred += li * yi
+            pred += li * (yi - y0)
         delta = h0**2 * (h0 + h1) ** 2 / (6 * (2 * h0 + h1))
         ep = h0 * (h0 + h1) * (h0 + h1 + h2) / 6
         return pred, delta / (delta + ep)
@@ -348,70 +389,126 @@ class TimeStepper:
         if op is not None:
             return self._affine_step(op, dt, order, a0, a1, a2)
         t_new = self.t + dt
-        hist = a1 * h.m[0] + (a2 * h.m[1] if a2 else 0.0)
+        order, a0, a1, a2, hist = self._history_part(order, a0, a1, a2)
         y_pred, est_factor = self._predict(dt, order) if opt.adaptive else (h.y[0], 0.0)
-        # Newton starts from the last accepted state: with stiff, sharply switching unknowns
-        # (a wall face turning dry) that is safer than the extrapolated predictor
-        y = h.y[0].copy()
+        project = getattr(p, "project", None)  # keeps iterates inside the unknowns' domain
+        # a problem may say when its Jacobian changes too fast to be kept between iterations
+        fast_changing = getattr(p, "jacobian_changes_fast", lambda y: False)
+        # Newton starts from the extrapolated predictor (projected into the domain): its first
+        # update is then of the size of the step's error instead of the step's change
+        start = opt.adaptive and self._newton_from_predictor(order) and np.all(np.isfinite(y_pred))
+        y = y_pred.copy() if start else h.y[0].copy()
+        if project is not None:
+            project(y)
+        # the Newton loop ends once the error left is a small fraction of the step's own tolerance
+        # (adaptive steps), or below the absolute newton_tolerance
+        weight = None
+        small = opt.tolerance if opt.adaptive else 0.0
+        if opt.adaptive:
+            weight = 1.0 / (opt.newton_fraction * (opt.tolerance * self._scale + opt.relative_tolerance * np.abs(h.y[0])))
         lu = None
         norms = []
         prev_norm = math.inf
         converged = False
-        for it in range(opt.max_newton_iterations):
-            ev = p.evaluate(y, t_new)
-            self.counters.evaluations += 1
-            m, dm = p.capacity(y)
+        settled = False  # the last update passed the Newton test; the balance is checked at its state
+        last_worst = math.inf
+        errors = {}
+        ev = p.evaluate(y, t_new)
+        self.counters.evaluations += 1
+        m, dm = p.capacity(y)
+        for it in range(opt.max_newton_iterations + 1):
             residual = a0 * m + hist - dt * ev.rate
-            if lu is None or not p.constant_jacobian and it > 0 and rate_poor:
+            if settled:
+                # the conserved totals must balance to round-off at the state the step ends on: the
+                # evaluation there is the one the next iteration would start from, so an iteration
+                # more costs only a solve with the kept factor and the next evaluation
+                w_new, errors = self._balance(m, ev, dt, a0, a2)
+                worst = max(errors.values(), default=0.0)
+                # (or it has stopped falling while the updates are at the round-off of the unknowns)
+                if worst <= opt.balance_tolerance or (worst > 0.5 * last_worst and norm <= ROUND_OFF_UPDATE):
+                    converged = True
+                    break
+                last_worst = worst
+            if it == opt.max_newton_iterations:
+                break
+            if lu is None or not p.constant_jacobian and it > 0 and (rate_poor or clipped or fast_changing(y)):
                 lu = self._lu(a0, dt, dm, ev, p.constant_jacobian)
             delta = solve(lu, -residual)
             self.counters.newton_iterations += 1
             if not np.all(np.isfinite(delta)):
                 return None
-            y += delta
+            clipped = False
+            if project is not None:
+                before = y.copy()
+                y += delta
+                free = y.copy()
+                project(y)
+                # where the domain cut an update short, the Jacobian of the old iterate has misled it
+                # (a drying face's inventory row scales with its flux): the next iteration factorises
+                # afresh
+                clipped = not np.array_equal(y, free)
+                if clipped:
+                    delta = y - before  # the change actually made
+            else:
+                y += delta
             norm = float(np.max(np.abs(delta) / self._scale))
-            rate_poor = norm > 0.3 * prev_norm
+            rate_poor = norm > REFACTOR_CONTRACTION * prev_norm
             prev_before, prev_norm = prev_norm, norm
             if p.exact_jacobian:
                 converged = True
                 # affine problem: the rate and content at the new state follow exactly
                 m = m + dm * delta
                 break
-            if it >= 1 and norm > 2.0 * prev_before and norm > 1e3 * opt.newton_tolerance:
+            # an update that grows while still below the step's own tolerance is not yet divergence
+            # (an inventory drying inside the step can make one iterate climb)
+            if it >= 1 and norm > 2.0 * prev_before and norm > max(1e3 * opt.newton_tolerance, small):
                 return None  # diverging: a shorter step will do better
             norms.append(norm)
             if it >= 4 and norm > 0.5 * norms[-4] and norm > 1e3 * opt.newton_tolerance:
                 return None  # not even halving over three iterations (cycling): a shorter step
             # converged; or stalled at the round-off floor of the evaluation just above the tolerance
-            if norm <= opt.newton_tolerance or (norm <= 1e3 * opt.newton_tolerance and norm > 0.5 * prev_before):
-                converged = True
-                break
+            settled = norm <= opt.newton_tolerance or (norm <= 1e3 * opt.newton_tolerance and norm > 0.5 * prev_before)
+            if weight is not None and it >= 1 and not settled:
+                contraction = norm / prev_before
+                settled = (contraction < 0.5 and
+                           float(np.max(np.abs(delta) * weight)) * contraction / (1.0 - contraction) <= 1.0)
+            if not np.all(np.isfinite(y)):
+                return None
+            ev = p.evaluate(y, t_new)
+            self.counters.evaluations += 1
+            m, dm = p.capacity(y)
         if not converged:
             return None
         if p.exact_jacobian:
-            m_new = m
             inflow = self._affine_inflow(ev, delta)
-        else:
-            ev = p.evaluate(y, t_new)
-            self.counters.evaluations += 1
-            m_new, _ = p.capacity(y)
+            w_new, errors = self._balance(m, ev, dt, a0, a2, inflow)
+        m_new = m
+        self.balance_error.update(errors)
+        err = 0.0
+        if opt.adaptive:
+            est = est_factor * np.abs(y - y_pred)
+            err = float(np.max(est / (opt.tolerance * self._scale + opt.relative_tolerance * np.abs(y))))
+        return y, m_new, err, ev, order, w_new, a0
+
+    def _balance(self, m_new, ev, dt, a0, a2, inflow=None):
+        """Each conserved total's inflow over the step by the scheme's quadrature, and the relative
+        difference between it and the total's change (the balance error)."""
+        h = self._history
+        if inflow is None:
             inflow = {g: ev.inflow(g) for g in self._groups}
             self._gross = {g: ev.gross(g) for g in self._groups}
-        if not np.all(np.isfinite(y)):
-            return None
-        w_new = {}
+        w_new, errors = {}, {}
         for g, sl in self._groups.items():
             w_new[g] = (dt * inflow[g] + a2 * self._inflow[g]) / a0
             stored = float((m_new[sl] - h.m[0][sl]).sum())  # differences first: no cancellation of totals
             # relative to the change, the gross exchange, or the round-off level of the total itself
             scale = max(abs(stored), dt * self._gross[g], 1e-13 * float(np.abs(m_new[sl]).sum()),
                         self._balance_floor[g], 1e-300)
-            self.balance_error[g] = abs(stored - w_new[g]) / scale
-        err = 0.0
-        if opt.adaptive:
-            est = est_factor * np.abs(y - y_pred)
-            err = float(np.max(est / (opt.tolerance * self._scale + opt.relative_tolerance * np.abs(y))))
-        return y, m_new, err, ev, order, w_new, a0
+            errors[g] = abs(stored - w_new[g]) / scale
+        return w_new, errors
+
+    def _newton_from_predictor(self, order: int) -> bool:
+        return getattr(self.problem, "newton_from_predictor", False)
 
     def _affine_step(self, op, dt, order, a0, a1, a2):
         """A step of F(T) = A T + f0: one residual update and one solve, nothing re-evaluated."""

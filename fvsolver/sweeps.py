@@ -37,6 +37,9 @@ RESULT_COLUMNS = ("status", "target_reached", "time_to_target_s", "target_pressu
                   "max_pressure_drop_pa", "stall_reason", "min_temperature_k", "max_temperature_k",
                   "max_internal_pressure_pa", "max_glass_temperature_k", "warnings",
                   "energy_balance_relative_error", "n_steps")
+# and, for a whole running device, its cycle
+CYCLE_COLUMNS = ("outcome", "first_tip_s", "period_s", "last_period_s", "n_cycles", "dips_per_hour",
+                 "water_per_day_kg", "outcome_reason")
 
 
 @dataclass(frozen=True)
@@ -265,7 +268,8 @@ def sweep(case: Case, varies: list[Vary], out: str | Path | None = None, overwri
 
     A run that fails (a solver failure, a property outside its data) is a row with status
     "failed" and the error in ``reason``; the sweep goes on. Rows carry the varied values, the
-    summary entries of RESULT_COLUMNS, the wall time and the run's folder.
+    summary entries of RESULT_COLUMNS (and CYCLE_COLUMNS for a whole device), the wall time and the
+    run's folder.
     """
     from fvsolver.outputs.paths import prepare_output
 
@@ -289,12 +293,15 @@ def sweep(case: Case, varies: list[Vary], out: str | Path | None = None, overwri
             workers.stop(pool)
         raise
     done: dict[int, dict] = {}
+    cycle_columns = case["geometry"]["shape"] == "whole_device"
 
     def record(index: int, result: tuple) -> None:
         summary, reason, seconds = result
         changes = grid[index][0]
         row = {"run": index, **changes}
         row.update({k: summary.get(k) for k in RESULT_COLUMNS})
+        if cycle_columns:
+            row.update({k: summary.get(k) for k in CYCLE_COLUMNS})
         row["warnings"] = "; ".join(row["warnings"] or []) or None
         row["reason"] = reason or summary.get("reason")
         row["wall_time_s"] = round(seconds, 3)
@@ -344,9 +351,13 @@ def sweep(case: Case, varies: list[Vary], out: str | Path | None = None, overwri
         name = case.path.name if case.path else "a case"
         plot = None
         units = {v.path: key_unit(v.path) for v in varies}
-        if any(r["time_to_target_s"] is not None for r in rows) and isinstance(varies[0].values[0], int | float):
+        # a running device is drawn by its last period (settled or not), a head by its time to target
+        result, label = (("last_period_s", "period of the last cycle (s)") if cycle_columns
+                         else ("time_to_target_s", "time to target (s)"))
+        if any(r.get(result) is not None for r in rows) and isinstance(varies[0].values[0], int | float):
             sweep_plot(rows, [v.path for v in varies], folder / "sweep.png",
-                       title=f"sweep of {name} (other inputs as in the case)", units=units)
+                       title=f"sweep of {name} (other inputs as in the case)", units=units, result=result,
+                       result_label=label, missing_label="fewer than two tips" if cycle_columns else "not reached")
             plot = "sweep.png"
         write_sweep_report(folder, f"Sweep of {name}", [v.path for v in varies], rows, plot, units=units)
         info = {"case_file": str(case.path) if case.path else None, "case_sha256": case.sha256,

@@ -40,6 +40,16 @@ def test_new_writes_a_commented_starter_case_that_runs(tmp_path, capsys):
     assert "exists" in capsys.readouterr().err
 
 
+def test_new_whole_device_writes_a_running_device_that_checks(tmp_path):
+    path = tmp_path / "device.toml"
+    assert main(["new", "--whole-device", str(path)]) == 0
+    text = path.read_text()
+    assert "CAUTION" in text and "invented" in text and "[cycle]" in text and "[pool]" in text
+    case = load_case(path)
+    assert case["geometry"]["shape"] == "whole_device" and case["cycle"]["water_glass"] is True
+    assert main(["check", str(path)]) == 0
+
+
 def test_progress_bar_shows_the_way_to_the_target():
     bar = ProgressBar(1800.0)
     bar.clock = lambda: 100.0

@@ -114,3 +114,20 @@ def test_table_has_units_separate_differences_and_fits_a_terminal(baseline, tmp_
     assert any("differ in kind" in w and "cap_water.mode" in w for w in result.warnings)
     assert "WARNING: the cases differ in kind" in table
     assert compare(tmp_path / "other", tmp_path / "other").warnings == []
+
+
+def test_a_running_device_is_compared_by_its_cycle(tmp_path):
+    """The outcome, first tip and periods of a whole device's run are regression checks too."""
+    from tests.device.cycle_helpers import whole_case
+
+    quick = {"cycle": {"tip_column_height": 0.05, "water_glass": True, "max_cycles": 3}, "time": {"end": 60.0}}
+    run(whole_case(**quick), tmp_path / "base", plots=False)
+    run(whole_case(**quick), tmp_path / "same", plots=False)
+    same = compare(tmp_path / "same", tmp_path / "base")
+    names = [c.quantity for c in same.checks]
+    assert same.passed and {"outcome", "first_tip_s", "last_period_s"} <= set(names)
+    humid = whole_case(**quick, room={"air_temperature": 297.15, "relative_humidity": 0.6, "air_speed": 0.2})
+    run(humid, tmp_path / "humid", plots=False)
+    diff = compare(tmp_path / "humid", tmp_path / "base")
+    failed = {c.quantity for c in diff.checks if c.passed is False}
+    assert not diff.passed and {"first_tip_s", "last_period_s"} <= failed

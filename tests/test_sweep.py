@@ -85,6 +85,20 @@ def test_sweep_table_follows_the_physics(tmp_path):
         assert not (tmp_path / "sw" / r["folder"] / "history.png").exists()  # plots only with plots=True
 
 
+def test_a_running_device_sweep_tabulates_its_cycle(tmp_path):
+    """A drier room tips it sooner and more often: sweep.csv carries the cycle's columns."""
+    from tests.device.cycle_helpers import whole_case
+
+    case = whole_case(cycle={"tip_column_height": 0.05, "water_glass": True, "max_cycles": 3}, time={"end": 60.0})
+    rows = fvsolver.sweep(case, {"room.relative_humidity": [0.3, 0.6]}, tmp_path / "sw")
+    assert [r["outcome"] for r in rows] == ["running", "running"]
+    assert rows[0]["first_tip_s"] < rows[1]["first_tip_s"]
+    assert rows[0]["last_period_s"] < rows[1]["last_period_s"]
+    table = list(csv.DictReader((tmp_path / "sw" / "sweep.csv").open()))
+    assert {"outcome", "first_tip_s", "period_s", "dips_per_hour", "water_per_day_kg"} <= set(table[0])
+    assert (tmp_path / "sw" / "sweep.png").stat().st_size > 10_000  # the last period against the humidity
+
+
 def test_sweep_command_line(tmp_path, capsys):
     case = tmp_path / "head.toml"
     from fvsolver.case.writer import dumps

@@ -91,6 +91,26 @@ STARTER = {
     "output": {"field_times": [30.0, 120.0, 600.0]},
 }
 
+#: the starter of a whole running device (`fvsolver new --whole-device`): the running-device demo's values
+STARTER_WHOLE = {
+    "geometry": {"shape": "whole_device", "bulb_inner_radius": 0.019, "glass_thickness": 0.0012,
+                 "cap_thickness": 0.002, "cap_from_deg": 0.0, "cap_to_deg": 110.0, "neck_inner_radius": 0.0025,
+                 "neck_outer_radius": 0.004, "tube_length": 0.12, "body_inner_radius": 0.024,
+                 "body_glass_thickness": 0.0015, "tube_end_gap": 0.004},
+    "mesh": {"glass_cells": 3, "cap_cells": 8, "polar_cells": 30, "neck_cells": 12, "body_polar_cells": 20,
+             "dip_tube_cells": 6},
+    "materials.glass": {"density": 2230.0, "conductivity": 1.14, "heat_capacity": 750.0},
+    "room": {"air_temperature": 297.15, "relative_humidity": 0.45, "air_speed": 0.2, "convection": "mixed"},
+    "cap": {"porosity": 0.85},
+    "cap_water": {"mode": "charge"},
+    "fluid": {"name": "dichloromethane", "accommodation_coefficient": 0.1, "initial_film": 0.002},
+    "pool": {"fill_volume": 2.0e-5},
+    "cycle": {"tip_column_height": 0.05, "water_glass": True},
+    "time": {"end": 1200.0},
+    "numerics": {"tolerance": 0.005, "initial_step": 0.05, "max_step": 5.0},
+    "output": {"field_count": 4},
+}
+
 
 def _key(path: str) -> Key:
     node = CASE
@@ -116,19 +136,25 @@ def _toml(value) -> str:
     return str(value)
 
 
-def starter_case(title: str = "My head: a wet-cap evaporative device") -> str:
+def starter_case(title: str | None = None, whole_device: bool = False) -> str:
     """A commented case file that validates and runs: each key with its meaning, unit, default and
-    range from the schema.  The values are those of the demo, invented for a demonstration."""
+    range from the schema.  The values are those of the demo (``whole_device``: of the
+    running-device demo), invented for a demonstration."""
+    starter = STARTER_WHOLE if whole_device else STARTER
+    if title is None:
+        title = "My running device: head, tube and body" if whole_device else "My head: a wet-cap evaporative device"
     lines = [
         "# fvsolver starter case. Edit the values; `fvsolver keys` lists every key with its unit,",
         "# default and range, and `fvsolver check FILE` validates the file.",
-        "# The values are invented for a demonstration (a head like the demo's), not a measured device.",
+        "# The values are invented for a demonstration (a " + ("device like the running-device demo's"
+                                                                  if whole_device else "head like the demo's")
+        + "), not a measured device.",
         "# CAUTION: working fluids such as dichloromethane are toxic and volatile, and sealed glass",
         "# under pressure can burst. Follow the safety data sheet, local codes and licensed practice.",
         "schema_version = 1",
         f"title = {_toml(title)}",
     ]
-    for table_path, values in STARTER.items():
+    for table_path, values in starter.items():
         head = _key(table_path.split(".")[0])
         lines += ["", f"[{table_path}]" + (f"   # {head.doc}" if head.doc else "")]
         for name, value in values.items():

@@ -49,6 +49,16 @@ class PoolContact:
         h = self.coefficient(centres)
         return h * (context["pool"]["temperature"] - T_s), -h
 
+    surface_kind = 0  # fvsolver.kernels.surfaces.DRY: convection to the pool's temperature
+
+    def surface_parameters(self, faces, centres, context) -> np.ndarray:
+        """The compiled solve's parameter rows (``fvsolver.kernels.surfaces``): h and T_p."""
+        from fvsolver.kernels.surfaces import PARAMETERS
+
+        p = np.zeros((len(faces), PARAMETERS))
+        p[:, 0], p[:, 1] = self.coefficient(centres), context["pool"]["temperature"]
+        return p
+
 
 @dataclass(frozen=True)
 class PoolGeometry:

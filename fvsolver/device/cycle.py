@@ -237,9 +237,9 @@ class CycleController:
         self._previous = (stepper.t, stepper.y.copy(), self._margin(stepper.y))
 
     # -- the verdict ------------------------------------------------------------------------
-    def finish(self, t_end: float, monitor, stall_reason) -> None:
+    def finish(self, t_end: float, monitor, stall_reason, y: np.ndarray | None = None) -> None:
         """Decide the outcome at the end of the run (``stall_reason``: callable giving the
-        monitor's plain-words reason the target was not reached)."""
+        monitor's plain-words reason the target was not reached; ``y``: the final state)."""
         if self.outcome is not None:
             return
         if not self.tips:
@@ -249,18 +249,38 @@ class CycleController:
         periods = [c["period_s"] for c in self.cycles if c["period_s"] is not None]
         since = t_end - self.stand_times[-1]
         typical = max(periods) if periods else self.tips[0]
-        dried = monitor is not None and monitor.dried_out_time is not None
+        # a cap that dried after the last stand-up explains the silence since; one that was dry
+        # from the start (a body-driven device) does not stop it
+        dried = (monitor is not None and monitor.dried_out_time is not None
+                 and monitor.dried_out_time >= self.stand_times[-1])
         if self.settled_period is not None or (since <= 2.0 * typical and not dried):
             self.outcome = "running"
             self.outcome_reason = (f"settled at a period of {self.settled_period:.4g} s" if self.settled_period
                                    else "still tipping at the end of the run; its period has not settled yet")
+            if self.settled_period is None and len(self.tips) >= self.spec.max_cycles + 1:
+                self.outcome_reason += f" (the run stopped at cycle.max_cycles = {self.spec.max_cycles})"
             return
         self.outcome = "stopped"
         n = len(self.tips)
         why = (f"the cap dried out at t = {monitor.dried_out_time:.0f} s" if dried
                else f"no tip in the {since:.0f} s since the last stand-up ({2.0 * typical:.0f} s would be two "
                     "of its longest cycles)")
+        cap = self._cap_state(y)
+        if cap is not None and not dried and cap[1] < 0.5:
+            why += (f"; the cap has dried to a saturation of {cap[0]:.3f}, where it evaporates at "
+                    f"{100.0 * cap[1]:.0f} % of its wet rate, too little to cool the head to the tip")
         self.outcome_reason = f"stopped after {n} dip{'s' if n != 1 else ''} (last tip at t = {self.tips[-1]:.1f} s): {why}"
+
+    def _cap_state(self, y: np.ndarray | None):
+        """(saturation, drying-rate factor) of the cap in state ``y``; None without a finite charge."""
+        from fvsolver.properties import porous
+
+        cw = self.problem.spec.cap_water
+        had_water = cw.initial_saturation > cw.residual_saturation or self.spec.water_glass
+        if y is None or cw.mode != "charge" or not had_water:
+            return None
+        s = min(max(self.problem.saturation(float(y[self.problem.i_w])), 0.0), 1.0)
+        return s, float(porous.drying_rate_factor(s, cw.critical_saturation, cw.residual_saturation))
 
     def summary(self) -> dict:
         """The cycle's keys of summary.json."""

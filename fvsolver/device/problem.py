@@ -35,8 +35,9 @@ from fvsolver.conduction import ConductionProblem, Evaluation
 from fvsolver.device.body import PoolContact
 from fvsolver.device.spec import GRAVITY, DeviceSpec
 from fvsolver.materials import REFERENCE_TEMPERATURE
-from fvsolver.device.surfaces import CondensingWall, EvaporativeCap, RoomSurface
-from fvsolver.linear import LowRankUpdate
+from fvsolver.device.surfaces import CondensingWall, EvaporativeCap, RoomSurface, water_latent_heat
+from fvsolver.kernels import surfaces as ks
+from fvsolver.linear import Assembler, LowRankUpdate
 from fvsolver.properties import convection, moist_air, porous
 from fvsolver.properties.fluids import UNIVERSAL_GAS_CONSTANT
 
@@ -44,6 +45,14 @@ CAP_PATCHES = ("cap_outer", "cap_edge")
 ROOM_PATCHES = ("glass_outer", "neck_outer")
 BODY_ROOM_PATCHES = ("body_outer",)
 POOL_PATCHES = ("body_inner", "dip_tube_outer", "tube_end")
+
+
+def _columns(n: int, columns) -> sp.csc_matrix:
+    """An (n, k) CSC matrix of the dense vectors' entries on their fixed supports (zeros kept)."""
+    indices = np.concatenate([support for _, support in columns])
+    data = np.concatenate([vector[support] for vector, support in columns])
+    indptr = np.concatenate([[0], np.cumsum([len(support) for _, support in columns])])
+    return sp.csc_matrix((data, indices, indptr), shape=(n, len(columns)))
 
 
 @dataclass
@@ -89,6 +98,8 @@ class DeviceProblem:
     exact_jacobian = False
     constant_jacobian = False
     linear = False
+    # Newton starts each step from the extrapolated state (inventories projected to >= 0)
+    newton_from_predictor = True
 
     def __init__(self, mesh, materials: dict, conditions: list[PatchCondition], spec: DeviceSpec,
                  sources: tuple = ()):
@@ -130,6 +141,11 @@ class DeviceProblem:
         self.inner = np.concatenate([mesh.patch_faces(p) for p in spec.vapour.patches] + [np.zeros(0, dtype=np.int64)])
         self.cap_faces = np.concatenate([mesh.patch_faces(p) for p in CAP_PATCHES if p in mesh.patch_names])
         self.room_faces = np.concatenate([mesh.patch_faces(p) for p in ROOM_PATCHES if p in mesh.patch_names])
+        self.outer_faces = np.concatenate([self.cap_faces, self.room_faces])
+        # the room faces whose coefficient is the head's h (a warm air stream's is not)
+        self.head_room_faces = np.concatenate(
+            [mesh.patch_faces(p) for p in ROOM_PATCHES if p in mesh.patch_names and p not in given and p not in hot]
+            + [np.zeros(0, dtype=np.int64)])
         n_in = len(self.inner)
         self.i_mv, self.i_c = n, np.arange(n + 1, n + 1 + n_in)
         self.i_w, self.i_tb = n + 1 + n_in, n + 2 + n_in
@@ -158,6 +174,18 @@ class DeviceProblem:
         self.outer_diameter = spec.room.diameter
         self.vapour_reference = spec.vapour.vapour_mass(spec.vapour.initial_temperature)
         self.tolerance_scale = self._tolerance_scale()
+        # the Jacobian's kept assembly, and where its low-rank columns can be nonzero
+        self._assemble = Assembler()
+        self._conduction_rows = None
+        wall_cells = np.unique(mesh.boundary_cell[self.inner])
+        self._u_support = np.unique(np.concatenate([wall_cells, self.i_c, [self.i_mv]])).astype(np.int64)
+        self._w_support = wall_cells.astype(np.int64)
+        self._outer_cells = np.unique(mesh.boundary_cell[self.outer_faces]).astype(np.int64)
+        self._outer_support = np.unique(np.concatenate([self._outer_cells, self.cap_cells, [self.i_w]])).astype(np.int64)
+        self._cap_support = np.asarray(self.cap_cells, dtype=np.int64)
+        self._cap_face_cells = np.unique(mesh.boundary_cell[self.cap_faces]).astype(np.int64)
+        if body is not None:  # the joined vapour spaces' flow reaches the pool's rows
+            self._u_support = np.unique(np.concatenate([self._u_support, [self.i_tb, self.i_mp]])).astype(np.int64)
 
     # -- state ----------------------------------------------------------------------------------
     def initial_state(self, temperature: float) -> np.ndarray:
@@ -179,12 +207,37 @@ class DeviceProblem:
     def _tolerance_scale(self) -> np.ndarray:
         scale = np.ones(self.n)
         m0 = self.spec.vapour.vapour_mass(self.spec.room.air_temperature)
-        scale[self.i_mv] = 0.04 * m0             # about one kelvin's worth of saturated vapour
+        # a quarter kelvin's worth of saturated vapour, about 1 % of the fill: the column's pressure
+        # difference follows m_v, and at tolerance 0.02 this allows about 1 mm of a 50 mm column a
+        # step (a kelvin's worth allowed 4 mm, and a tip located inside a long step landed up to 1.4 %
+        # off its column)
+        scale[self.i_mv] = 0.01 * m0
         scale[self.i_c] = max(self.spec.vapour.initial_film, 1e-2)  # inventories do not steer the steps
         scale[self.i_w] = 0.01 * max(self.pore_water_capacity, 1e-9)
         if self.body is not None:
             scale[self.i_mp] = 1e-3 * self.body.initial_pool_mass
         return scale
+
+    def project(self, y: np.ndarray) -> None:
+        """Put a Newton iterate back into the unknowns' domain, in place: no inventory below zero.
+        (On a drying face the step's equation c + a phi(c) = c_old is concave in c: Newton's
+        iterates from below zero then climb to the root without overshooting it.)"""
+        c = y[self.i_c]
+        np.maximum(c, 0.0, out=c)
+        y[self.i_c] = c
+
+    def jacobian_changes_fast(self, y: np.ndarray) -> bool:
+        """True while an inner face is drying through its limiter's range (c_ref / 100 < c < 100
+        c_ref): its inventory row's Jacobian then changes by large factors between iterates, and
+        Newton needs it afresh every iteration."""
+        cr = self.wall_term.film_reference
+        c = y[self.i_c]
+        return bool(np.any((c > 1e-2 * cr) & (c < 1e2 * cr)))
+
+    @property
+    def nonnegative(self) -> np.ndarray:
+        """Unknowns that never go below zero (their content is a positive multiple of them)."""
+        return self.i_c
 
     def vapour_mass(self, y: np.ndarray) -> float:
         """Working-fluid vapour in the head, kg."""
@@ -245,26 +298,40 @@ class DeviceProblem:
         s = self.saturation(y[self.i_w])
         wet = float(porous.drying_rate_factor(np.clip(s, 0.0, 1.0), spec.cap_water.critical_saturation,
                                               spec.cap_water.residual_saturation))
-        outer = np.concatenate([self.cap_faces, self.room_faces])
-        t_surf = float(np.average(T[self.mesh.boundary_cell[outer]], weights=self.mesh.boundary_areas[outer]))
-        t_surf = float(np.clip(t_surf, 274.0, 320.0))  # the correlations' range; iterates may stray
-        if room.convection == "given":
-            h = room.heat_transfer_coefficient
-        else:
-            h = float(convection.sphere_convection(self.outer_diameter, t_surf, room.air_temperature,
-                                                   room.pressure, room.air_speed, room.convection).h)
-        t_film = 0.5 * (t_surf + room.air_temperature)
-        h_m = float(convection.mass_transfer_coefficient(h, t_film, room.pressure, room.lewis_number))
+        outer = self.outer_faces
+        t_mean = float(np.average(T[self.mesh.boundary_cell[outer]], weights=self.mesh.boundary_areas[outer]))
+        t_surf = float(np.clip(t_mean, 274.0, 320.0))  # the correlations' range; iterates may stray
+        h, h_m = self._transfer_coefficients(t_surf)
         inventory = np.zeros(self.mesh.n_boundary)
         inventory[self.inner] = y[self.i_c]
         p = self.pressures(y)
-        ctx = {"cap": {"h": h, "h_m": h_m, "wet_fraction": wet, "saturation": s},
+        ctx = {"cap": {"h": h, "h_m": h_m, "wet_fraction": wet, "saturation": s, "surface_mean": t_mean},
                "room": {"h": h},
                "vapour": {"pressure": p["head_vapour_pa"], "temperature": p["vapour_temperature_k"],
                           "inventory": inventory}}
         if self.body is not None:
             ctx.update(self._body_context(T, y))
         return ctx
+
+    def _transfer_coefficients(self, t_surf: float) -> tuple[float, float]:
+        """The head's outside convection coefficient h (W/(m2 K)) and the cap's mass-transfer
+        coefficient h_m (m/s) at the outer surface's mean temperature t_surf (K)."""
+        room = self.spec.room
+        if room.convection == "given":
+            h = room.heat_transfer_coefficient
+        else:
+            h = float(convection.sphere_convection(self.outer_diameter, t_surf, room.air_temperature,
+                                                   room.pressure, room.air_speed, room.convection).h)
+        t_film = 0.5 * (t_surf + room.air_temperature)
+        return h, float(convection.mass_transfer_coefficient(h, t_film, room.pressure, room.lewis_number))
+
+    def _transfer_derivatives(self, t_mean: float, h: float, h_m: float) -> tuple[float, float]:
+        """dh/dt_surf and dh_m/dt_surf (a forward difference of 0.01 K from the context's h and h_m;
+        zero where t_surf is clipped)."""
+        if not 274.0 < t_mean < 320.0 - 0.01:
+            return 0.0, 0.0
+        hp, hmp = self._transfer_coefficients(t_mean + 0.01)
+        return (hp - h) / 0.01, (hmp - h_m) / 0.01
 
     def _body_context(self, T: np.ndarray, y: np.ndarray) -> dict:
         """The pool's temperature and the body bulb's outside coefficients (room, warm air streams)."""
@@ -318,6 +385,7 @@ class DeviceProblem:
         """W into each cap cell from the sensible enthalpy of the water leaving or arriving."""
         out = np.zeros(self.n_cells)
         dout = np.zeros(self.n_cells)
+        per_evaporation = np.zeros(self.n_cells)  # d out / d(evaporation_total)
         cells = self.cap_cells
         v = self.mesh.cell_volumes[cells]
         cw = self.spec.cap_water
@@ -328,11 +396,14 @@ class DeviceProblem:
             out[cells] = v * de_ds * ds_dt
             dout[cells] = v * self.cap_material.porosity * (
                 self.cap_material.water_volumetric_heat - 1.2 * 1006.0) * ds_dt
+            per_evaporation[cells] = -v * de_ds / self.pore_water_capacity
         else:
             # the reservoir replaces what evaporates, with water at its own temperature
             share = evaporation_total * v / self.cap_volume * cw.water_heat_capacity
             out[cells] = share * (cw.reservoir_temperature - T[cells])
             dout[cells] = -share
+            per_evaporation[cells] = v / self.cap_volume * cw.water_heat_capacity * (cw.reservoir_temperature - T[cells])
+        self._per_evaporation = per_evaporation
         return out, dout
 
     def evaluate(self, y: np.ndarray, time: float) -> DeviceEvaluation:
@@ -341,8 +412,14 @@ class DeviceProblem:
         ctx = self.context(y)
         ev = self.conduction.evaluate(T, time, ctx)
         t_s = ev.surface_temperature
-        j, dj_dt, dj_dp, dj_dc = self.wall_term.mass_flux(t_s[self.inner], self.inner, ctx)
-        m_e, dme_dt = self.cap_term.mass_flux(t_s[self.cap_faces], ctx)
+        terms = ev.surface_terms
+        if terms is not None:  # the compiled surface solve's mass fluxes at its surface temperatures
+            wall, cap = terms[self.inner], terms[self.cap_faces]
+            j, dj_dt, dj_dp, dj_dc = wall[:, ks.M], wall[:, ks.DM], wall[:, ks.DM_DP], wall[:, ks.DM_DC]
+            m_e, dme_dt = cap[:, ks.M], cap[:, ks.DM]
+        else:
+            j, dj_dt, dj_dp, dj_dc = self.wall_term.mass_flux(t_s[self.inner], self.inner, ctx)
+            m_e, dme_dt = self.cap_term.mass_flux(t_s[self.cap_faces], ctx)
         area_cap = mesh.boundary_areas[self.cap_faces]
         evap_total = float(np.dot(area_cap, m_e))
         sensible, dsensible = self._water_sensible(T, evap_total, ctx)
@@ -369,7 +446,8 @@ class DeviceProblem:
                    "pool_energy": extras.get("pool_gross", 0.0) + 1e-300}
         return DeviceEvaluation(rate, ev, ctx, inflows, grosses, j, m_e, sensible,
                                 {"dj_dt": dj_dt, "dj_dp": dj_dp, "dj_dc": dj_dc, "dme_dt": dme_dt,
-                                 "dsensible": dsensible, "T": T, **extras})
+                                 "dsensible": dsensible, "sensible_per_evaporation": self._per_evaporation,
+                                 "T": T, **extras})
 
     def joint_flow(self, y: np.ndarray) -> tuple[float, float, float]:
         """Vapour flow from the pool into the head while tipped (kg/s) and its derivatives with
@@ -405,20 +483,21 @@ class DeviceProblem:
         n, mesh, x = self.n_cells, self.mesh, ev.extras
         c = ev.conduction
         jtt = self.conduction.jacobian(alpha0, dt, dm[:n], c)
-        jtt = jtt - sp.diags(dt * x["dsensible"], format="csr")
         rows, cols, vals = [], [], []
 
         def add(r, cl, v):
             r, cl, v = np.broadcast_arrays(np.atleast_1d(r), np.atleast_1d(cl), np.atleast_1d(v))
             rows.append(r.ravel()), cols.append(cl.ravel()), vals.append(v.ravel())
 
+        add(np.arange(n), np.arange(n), -dt * x["dsensible"])
         # condensing inner faces
         b = self.inner
         P = mesh.boundary_cell[b]
         kap, g1 = c.surface_conductance[b], c.surface_derivative[b]
         area = self.inner_area
         tau = kap / (kap - g1)
-        lat = self.wall_term.latent_heat(c.surface_temperature[b])
+        terms = c.surface_terms
+        lat = terms[b, ks.LATENT] if terms is not None else self.wall_term.latent_heat(c.surface_temperature[b])
         vap = self.spec.vapour
         dp_dm = UNIVERSAL_GAS_CONSTANT * ev.context["vapour"]["temperature"] / (vap.fluid.molar_mass * vap.volume)
         dts_dp = lat * x["dj_dp"] / (kap - g1)
@@ -446,10 +525,22 @@ class DeviceProblem:
         np.add.at(u, P, -dt * area * kap * dts_dtv)
         u[self.i_c] = -dt * area * dJ_dtv
         u[self.i_mv] = dt * float(np.sum(area * dJ_dtv))
+        if self.body is not None and self.tipped:
+            # the joined vapour spaces' flow G = k (p_sat(T_p) - p_v) sees T_v through p_v too
+            dg_dtv = -self.joint_conductance * per_tv
+            u[self.i_mv] -= dt * dg_dtv
+            u[self.i_mp] += dt * dg_dtv
+            u[self.i_tb] += dt * dg_dtv * x["leaving_enthalpy"]
         w = np.zeros(self.n)
         np.add.at(w, P, weight)
         lumped = np.zeros(self.n - n)
         lumped[0] = alpha0 + dt * float(np.sum(area * dJ_dm))
+        # the outside coefficients h and h_m follow the outer surface's mean temperature: a second
+        # rank-one coupling, of every outer face to every outer cell
+        u2, w2 = self._transfer_coupling(dt, ev)
+        # the water's sensible enthalpy in every cap cell follows the total evaporation, which
+        # follows the temperatures of the cells under the cap's faces: a third
+        u3, w3 = self._evaporation_coupling(dt, ev)
         # the cap's water
         if self.spec.cap_water.mode == "charge":
             bc = self.cap_faces
@@ -475,6 +566,8 @@ class DeviceProblem:
             cells = self.cap_cells
             de_dW = self.cap_material.denergy_dsaturation(x["T"][cells]) / self.pore_water_capacity
             add(cells, self.i_w, alpha0 * mesh.cell_volumes[cells] * de_dW)
+            # the water's sensible enthalpy follows the total evaporation, which follows W
+            add(cells, self.i_w, -dt * x["sensible_per_evaporation"][cells] * float(np.sum(ac * dME_dW)))
         else:
             lumped[self.i_w - n] = alpha0
         bulb = self.spec.second_bulb
@@ -485,10 +578,69 @@ class DeviceProblem:
             diag_rows = np.array([self.i_mv, self.i_w, self.i_tb, self.i_mp])
         # the lumped rows' diagonals that add() did not give (m_v, W, T_b, m_p), and the c diagonal above
         add(diag_rows, diag_rows, lumped[diag_rows - n])
-        r, cl, v = np.concatenate(rows), np.concatenate(cols), np.concatenate(vals)
-        extra = sp.coo_matrix((v, (r, cl)), shape=(self.n, self.n))
-        full = sp.bmat([[jtt, None], [None, sp.csr_matrix((self.n - n, self.n - n))]], format="csr")
-        return LowRankUpdate((full + extra.tocsr()).tocsr(), sp.csr_matrix(u[:, None]), sp.csr_matrix(w[:, None]))
+        # the conduction block's entries and the couplings', summed by a kept assembly (the structure is
+        # the same from one call to the next)
+        if self._conduction_rows is None or len(self._conduction_rows) != len(jtt.indices):
+            self._conduction_rows = np.repeat(np.arange(n), np.diff(jtt.indptr))
+        r = np.concatenate([self._conduction_rows] + rows)
+        cl = np.concatenate([jtt.indices] + cols)
+        v = np.concatenate([jtt.data] + vals)
+        base = self._assemble(r, cl, v, (self.n, self.n))
+        columns = [(u, self._u_support), (w, self._w_support), (u3, self._cap_support), (w3, self._cap_face_cells)]
+        if u2 is not None:
+            columns += [(u2, self._outer_support), (w2, self._outer_cells)]
+        left = _columns(self.n, columns[0::2])
+        right = _columns(self.n, columns[1::2])
+        return LowRankUpdate(base, left, right)
+
+    def _evaporation_coupling(self, dt: float, ev: DeviceEvaluation):
+        """(u, w): the Jacobian's update u w^T of the water's sensible enthalpy in the cap cells through
+        the total evaporation E = sum A m_e(T_s), T_s eliminated per face."""
+        c, mesh = ev.conduction, self.mesh
+        u = np.zeros(self.n)
+        w = np.zeros(self.n)
+        faces = self.cap_faces
+        if faces.size:
+            kap, g1 = c.surface_conductance[faces], c.surface_derivative[faces]
+            np.add.at(w, mesh.boundary_cell[faces], mesh.boundary_areas[faces] * ev.extras["dme_dt"] * kap / (kap - g1))
+            u[self.cap_cells] = -dt * ev.extras["sensible_per_evaporation"][self.cap_cells]
+        return u, w
+
+    def _transfer_coupling(self, dt: float, ev: DeviceEvaluation):
+        """(u, w): the Jacobian's update u w^T from h(t_surf) and h_m(t_surf), t_surf = w . T the outer
+        cells' area-weighted mean; None where the coefficients are fixed."""
+        ctx, c = ev.context, ev.conduction
+        dh, dhm = self._transfer_derivatives(ctx["cap"]["surface_mean"], ctx["cap"]["h"], ctx["cap"]["h_m"])
+        if dh == 0.0 and dhm == 0.0:
+            return None, None
+        mesh, room = self.mesh, self.spec.room
+        u = np.zeros(self.n)
+        w = np.zeros(self.n)
+        outer = self.outer_faces
+        area_o = mesh.boundary_areas[outer]
+        np.add.at(w, mesh.boundary_cell[outer], area_o / area_o.sum())
+        for faces, cap in ((self.cap_faces, True), (self.head_room_faces, False)):
+            if faces.size == 0:
+                continue
+            kap, g1 = c.surface_conductance[faces], c.surface_derivative[faces]
+            t_s = c.surface_temperature[faces]
+            # dq/dt_surf at fixed T_s
+            dq = (room.air_temperature - t_s) * dh
+            if cap:
+                m_e, h_m = ev.evaporation, ctx["cap"]["h_m"]
+                lat = (c.surface_terms[faces, ks.LATENT] if c.surface_terms is not None
+                       else water_latent_heat(t_s))
+                dq = dq - lat * m_e * dhm / h_m
+            area = mesh.boundary_areas[faces]
+            np.add.at(u, mesh.boundary_cell[faces], -dt * area * kap * dq / (kap - g1))
+            if cap:
+                dts = dq / (kap - g1)
+                devap = float(np.sum(area * (ev.evaporation * dhm / ctx["cap"]["h_m"] + ev.extras["dme_dt"] * dts)))
+                cells = self.cap_cells
+                u[cells] -= dt * ev.extras["sensible_per_evaporation"][cells] * devap
+                if self.spec.cap_water.mode == "charge":
+                    u[self.i_w] = dt * devap
+        return u, w
 
     def _pool_jacobian(self, alpha0, dt, dm, ev, lumped, add) -> None:
         """The pool's entries: its contact with the glass (surface temperatures eliminated per face),

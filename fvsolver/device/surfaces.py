@@ -19,8 +19,13 @@ them through the evaluation ``context``:
   so a pure vapour in contact with a wet face at rest is at that face's saturation pressure
   whatever the bulk temperature (Schrage 1953 with a film-side gas temperature; the usual
   linearised interfacial form, as in ht.condensation.h_kinetic).  A face re-evaporates only what
-  it holds: an evaporating j is scaled by c+ / (c+ + c_ref), with c its condensate inventory
-  (kg/m2) and c+ a smooth positive part of c.
+  it holds: an evaporating j is scaled by phi = c / (c + c_ref), with c >= 0 its condensate
+  inventory (kg/m2), so that an inventory never goes below zero (backward Euler keeps
+  c_new = c_old + dt j(c_new) >= 0 whenever c_old >= 0).
+
+Each term also hands its parameters to the compiled face-by-face solve
+(``fvsolver.kernels.surfaces``): ``surface_kind`` and ``surface_parameters(faces, centres,
+context)``; the terms' own ``heat_flux`` is that kernel's Python twin.
 """
 from __future__ import annotations
 
@@ -29,6 +34,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from fvsolver.boundary import STEFAN_BOLTZMANN
+from fvsolver.kernels import surfaces as ks
 from fvsolver.properties import water
 from fvsolver.properties.fluids import UNIVERSAL_GAS_CONSTANT, WorkingFluid
 
@@ -46,6 +52,23 @@ def saturated_water_vapour_density(T: np.ndarray) -> tuple[np.ndarray, np.ndarra
     dp = water.dsaturation_pressure_dT(t)
     c = water.MOLAR_MASS / UNIVERSAL_GAS_CONSTANT
     return c * p / t, c * (dp / t - p / t**2)
+
+
+def water_latent_heat(T: np.ndarray) -> np.ndarray:
+    """Water's latent heat (J/kg) at T inside the correlations' range."""
+    return water.latent_heat(_water_range(T))
+
+
+def water_latent_heat_derivative(T: np.ndarray) -> np.ndarray:
+    """dL/dT of water's latent heat (PPDS12, as fvsolver.properties.water.latent_heat), J/(kg K)."""
+    tau = 1.0 - T / water._PPDS12_TC
+    a, b, c, d, e = water._PPDS12
+    dtau = a / 3.0 * tau ** (-2 / 3) + 2.0 * b / 3.0 * tau ** (-1 / 3) + c + 2.0 * d * tau + 6.0 * e * tau**5
+    return -water._R * dtau / water.MOLAR_MASS
+
+
+def _rows(n: int) -> np.ndarray:
+    return np.zeros((n, ks.PARAMETERS))
 
 
 @dataclass(frozen=True)
@@ -77,12 +100,23 @@ class EvaporativeCap:
         m, dm = self.mass_flux(T_s, context)
         t = _water_range(T_s)
         lat = water.latent_heat(t)
-        dlat = (water.latent_heat(t + 0.01) - water.latent_heat(t - 0.01)) / 0.02
+        dlat = water_latent_heat_derivative(t)
         es = self.emissivity * STEFAN_BOLTZMANN
         q = (cap["h"] * (self.air_temperature - T_s) + es * (self.surroundings_temperature**4 - T_s**4) - lat * m
              + self.extra_flux)
         dq = -cap["h"] - 4.0 * es * T_s**3 - lat * dm - dlat * m
         return q, dq
+
+    surface_kind = ks.CAP
+
+    def surface_parameters(self, faces, centres, context) -> np.ndarray:
+        """The compiled solve's parameter rows (``fvsolver.kernels.surfaces``), (n_faces, PARAMETERS)."""
+        cap = context["cap"]
+        p = _rows(len(faces))
+        p[:, ks.H], p[:, ks.T_AIR], p[:, ks.EXTRA] = cap["h"], self.air_temperature, self.extra_flux
+        p[:, ks.RADIATION], p[:, ks.T_SURROUNDINGS] = self.emissivity * STEFAN_BOLTZMANN, self.surroundings_temperature
+        p[:, ks.EVAPORATION], p[:, ks.RHO_AIR] = cap["wet_fraction"] * cap["h_m"], self.vapour_density_air
+        return p
 
     def dheat_flux_dwet(self, T_s, context) -> np.ndarray:
         """dq / d(wet_fraction) at fixed T_s."""
@@ -102,6 +136,10 @@ class CondensingWall:
     accommodation: float
     kinetic_multiplier: float = 1.0
     film_reference: float = 1e-5  # kg/m2, ~10 nm of liquid: below this a face dries smoothly
+    # kg/(m2 s): the width over which the limiter turns on as a face turns from condensing to
+    # re-evaporating (a smooth positive part of the raw flux instead of a kink, which Newton's
+    # method would otherwise cycle across on a dry face at equilibrium)
+    flux_smoothing: float = 1e-6
     coupled = True
 
     @property
@@ -126,29 +164,58 @@ class CondensingWall:
         raw = beta * excess / root
         draw_dt = -beta * (dps / root + 0.5 * excess / (t * root))
         draw_dp = beta / root
-        # the inventory limiter phi = c+ / (c+ + c_ref) with c+ = c_ref ln(1 + e^(c / c_ref)), a smooth
-        # positive part: an evaporating face slows as it dries and stops just below zero.  j stays
-        # monotone in T_s (only a kink where the face turns), which the surface solve needs.
-        c = vap["inventory"][faces]
-        cr = self.film_reference
-        x = c / cr
-        plus = cr * np.logaddexp(0.0, x)
-        phi = plus / (plus + cr)
-        dphi = cr / (plus + cr) ** 2 * 0.5 * (1.0 + np.tanh(0.5 * x))  # sigmoid(x) = dplus/dc
-        scale = np.where(raw < 0.0, phi, 1.0)
-        j = raw * scale
-        return j, draw_dt * scale, draw_dp * scale, np.where(raw < 0.0, raw * dphi, 0.0)
+        # the inventory limiter phi = c / (c + c_ref) (c >= 0; the stepper keeps iterates there) on the
+        # re-evaporating part: j = phi raw + (1 - phi) s(raw), s = eps ln(1 + e^(raw / eps)) a smooth
+        # positive part of raw.  An evaporating face slows as it dries and stops at zero (at c = 0,
+        # j = s(raw) >= 0); j stays monotone in T_s, which the surface solve needs.  dphi/dc is the
+        # right derivative at c = 0, so that Newton's iterates on a drying face approach the root
+        # from above zero.
+        c = np.maximum(vap["inventory"][faces], 0.0)
+        cr, eps = self.film_reference, self.flux_smoothing
+        phi = c / (c + cr)
+        dphi = cr / (c + cr) ** 2
+        x = raw / eps
+        plus = eps * np.logaddexp(0.0, x)
+        sig = 0.5 * (1.0 + np.tanh(0.5 * x))  # the logistic function, ds/draw
+        j = phi * raw + (1.0 - phi) * plus
+        dj_draw = phi + (1.0 - phi) * sig
+        return j, dj_draw * draw_dt, dj_draw * draw_dp, (raw - plus) * dphi
 
     def heat_flux(self, T_s, time, centres, faces, context):
         j, dj, _, _ = self.mass_flux(T_s, faces, context)
-        lat = self.fluid.latent_heat(self._clip(T_s))
-        return lat * j, lat * dj
+        t = self._clip(T_s)
+        lat = self.fluid.latent_heat(t)
+        return lat * j, lat * dj + self.fluid.dlatent_heat_dT(t) * j
+
+    surface_kind = ks.WALL
+
+    def surface_parameters(self, faces, centres, context) -> np.ndarray:
+        """The compiled solve's parameter rows (``fvsolver.kernels.surfaces``), (n_faces, PARAMETERS)."""
+        vap = context["vapour"]
+        p = _rows(len(faces))
+        p[:, ks.P_VAPOUR] = vap["pressure"]
+        p[:, ks.INVENTORY] = vap["inventory"][faces]
+        return p
+
+    def fluid_constants(self) -> np.ndarray:
+        """The compiled solve's fluid vector (``fvsolver.kernels.surfaces.FLUID_CONSTANTS`` entries)."""
+        f, eq = self.fluid, self.fluid.vapour_pressure
+        lo, hi = self._limits()
+        return np.array([self.coefficient, self.film_reference, lo, hi, eq.critical_temperature,
+                         eq.critical_pressure, eq.a, eq.b, eq.c, eq.d, f.critical_temperature,
+                         *f.latent_heat_ppds12, UNIVERSAL_GAS_CONSTANT * f.critical_temperature, f.molar_mass,
+                         self.flux_smoothing])
 
     def _clip(self, T_s: np.ndarray) -> np.ndarray:
         """Temperatures inside the fluid's data (trial values of the surface solve may stray);
         the run checks and reports real excursions outside the data range."""
-        eq = self.fluid.vapour_pressure
-        return np.clip(T_s, max(eq.t_min, self.fluid.liquid_range[0]), min(eq.t_max, self.fluid.liquid_range[1]))
+        return np.clip(T_s, *self._limits())
+
+    def _limits(self) -> tuple[float, float]:
+        """The fluid's data range, closed just below the critical point (where the latent heat's
+        slope is infinite)."""
+        eq, f = self.fluid.vapour_pressure, self.fluid
+        return max(eq.t_min, f.liquid_range[0]), min(eq.t_max, f.liquid_range[1]) * (1.0 - 1e-9)
 
     def latent_heat(self, T_s: np.ndarray) -> np.ndarray:
         return self.fluid.latent_heat(self._clip(T_s))
@@ -172,6 +239,15 @@ class RoomSurface:
 
     def validate(self, where: str) -> None:
         return None
+
+    surface_kind = ks.DRY
+
+    def surface_parameters(self, faces, centres, context) -> np.ndarray:
+        """The compiled solve's parameter rows (``fvsolver.kernels.surfaces``), (n_faces, PARAMETERS)."""
+        p = _rows(len(faces))
+        p[:, ks.H], p[:, ks.T_AIR], p[:, ks.EXTRA] = context[self.exchange]["h"], self.air_temperature, self.extra_flux
+        p[:, ks.RADIATION], p[:, ks.T_SURROUNDINGS] = self.emissivity * STEFAN_BOLTZMANN, self.surroundings_temperature
+        return p
 
     def heat_flux(self, T_s, time, centres, faces, context):
         h = context[self.exchange]["h"]

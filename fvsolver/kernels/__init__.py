@@ -11,6 +11,9 @@ import numba
 # every kernel and helper lives in one module so the cache cannot go stale across modules.
 JIT_OPTIONS = dict(cache=True, nogil=True, fastmath=False, boundscheck=False)
 
+# False under NUMBA_DISABLE_JIT=1: callers that loop over faces in a kernel take their NumPy path
+COMPILED = not numba.config.DISABLE_JIT
+
 
 def jit(function):
     """Compile ``function`` with the wing's flags."""

@@ -26,24 +26,29 @@ def if97_saturation_pressure(T, n, out):
 
 
 @jit
+def if97_with_slope(t, n):
+    """p_sat (Pa) and dp_sat/dT (Pa/K) of water at one temperature, IAPWS-IF97 eq. (30)."""
+    th = t + n[8] / (t - n[9])
+    a = th**2 + n[0] * th + n[1]
+    b = n[2] * th**2 + n[3] * th + n[4]
+    c = n[5] * th**2 + n[6] * th + n[7]
+    da = 2.0 * th + n[0]
+    db = 2.0 * n[2] * th + n[3]
+    dc = 2.0 * n[5] * th + n[6]
+    dth = 1.0 - n[8] / (t - n[9]) ** 2
+    s = np.sqrt(b**2 - 4.0 * a * c)
+    den = -b + s
+    x = 2.0 * c / den
+    ds = (b * db - 2.0 * (a * dc + c * da)) / s
+    dx = (2.0 * dc * den - 2.0 * c * (-db + ds)) / den**2
+    return 1.0e6 * x**4, 1.0e6 * 4.0 * x**3 * dx * dth
+
+
+@jit
 def if97_dsaturation_pressure_dT(T, n, out):
     """The analytic T-derivative of IAPWS-IF97 eq. (30), Pa/K."""
     for i in range(T.shape[0]):
-        t = T[i]
-        th = t + n[8] / (t - n[9])
-        a = th**2 + n[0] * th + n[1]
-        b = n[2] * th**2 + n[3] * th + n[4]
-        c = n[5] * th**2 + n[6] * th + n[7]
-        da = 2.0 * th + n[0]
-        db = 2.0 * n[2] * th + n[3]
-        dc = 2.0 * n[5] * th + n[6]
-        dth = 1.0 - n[8] / (t - n[9]) ** 2
-        s = np.sqrt(b**2 - 4.0 * a * c)
-        den = -b + s
-        x = 2.0 * c / den
-        ds = (b * db - 2.0 * (a * dc + c * da)) / s
-        dx = (2.0 * dc * den - 2.0 * c * (-db + ds)) / den**2
-        out[i] = 1.0e6 * 4.0 * x**3 * dx * dth
+        out[i] = if97_with_slope(T[i], n)[1]
 
 
 @jit

@@ -282,6 +282,14 @@ class WorkingFluid:
                              UNIVERSAL_GAS_CONSTANT * self.critical_temperature, self.molar_mass)
         return self._latent_heat_numpy(t)
 
+    def dlatent_heat_dT(self, T: ArrayLike) -> NDArray[np.float64]:
+        """dL/dT [J/(kg K)] of the PPDS12 latent heat at ``T`` [K]."""
+        t = self._temperature(T, "latent heat", *self.liquid_range)
+        tau = 1.0 - t / self.critical_temperature
+        a, b, c, d, e = self.latent_heat_ppds12
+        dtau = a / 3.0 * tau ** (-2 / 3) + 2.0 * b / 3.0 * tau ** (-1 / 3) + c + 2.0 * d * tau + 6.0 * e * tau**5
+        return (-UNIVERSAL_GAS_CONSTANT * dtau / self.molar_mass)[()]
+
     def _latent_heat_numpy(self, t: NDArray[np.float64]) -> NDArray[np.float64]:
         """PPDS eq. 12 in NumPy (the twin of ``kernels.properties.ppds12_latent_heat``)."""
         tau = 1.0 - t / self.critical_temperature

@@ -16,7 +16,7 @@ HELP = {
 }
 
 EXAMPLES = """\
-  fvsolver envelope cases/demo.toml --temperature 288.15:308.15:10 --humidity 0.3:0.98:10 --jobs 2
+  fvsolver envelope cases/demo.toml --temperature "linspace(288.15,308.15,10)" --humidity "linspace(0.3,0.98,10)" --jobs 2
   fvsolver envelope cases/demo.toml --temperature 293.15,303.15 --humidity 0.5,0.9 --workers 2
   fvsolver converge cases/demo.toml --levels 3 --ratio 1.5 --out results/demo_converge
   fvsolver fit cases/demo.toml --data measured.csv --fit fluid.accommodation_coefficient=0.01:1
@@ -54,6 +54,11 @@ def progress_printer(say, engine, jobs: int, describe):
         running = min(engine.running(), left) if engine is not None else min(jobs, left)
         if row["status"] != "complete":
             result = f"{row['status']}: {row['reason']}"
+        elif row.get("outcome"):  # a running device
+            period = row.get("period_s") or row.get("last_period_s")
+            result = row["outcome"].replace("_", " ") + (f", period {period:.3g} s" if period else "")
+            if row["outcome"] == "running" and not row.get("period_s"):
+                result += " (not settled)" if period else ""
         elif row["target_reached"] is None:
             result = "complete"
         elif row["target_reached"]:
@@ -78,9 +83,9 @@ def add_commands(sub, epilog: str) -> None:
         s.add_argument("--overwrite", action="store_true", help="write into a non-empty output folder")
         if name == "envelope":
             s.add_argument("--temperature", required=True, metavar="K",
-                           help="room air temperatures in K: START:STOP:N or T1,T2,...")
+                           help="room air temperatures in K: linspace(START,STOP,N) or T1,T2,...")
             s.add_argument("--humidity", required=True, metavar="RH",
-                           help="relative humidities (0-1): START:STOP:N or RH1,RH2,...")
+                           help="relative humidities (0-1): linspace(START,STOP,N) or RH1,RH2,...")
             s.add_argument("--result", default=None, metavar="KEY",
                            help="the summary result to map (default time_to_target_s)")
             add_engine_options(s)
@@ -88,7 +93,7 @@ def add_commands(sub, epilog: str) -> None:
             s.add_argument("--levels", type=int, default=3, help="refinement levels per study, 3 or more (default 3)")
             s.add_argument("--ratio", type=float, default=1.5,
                            help="refinement ratio of every cell count per level (default 1.5; the tolerance "
-                                "falls by its square)")
+                                "falls by its cube, so the steps shorten by it)")
             s.add_argument("--study", action="append", choices=("both", "mesh", "time"), default=None,
                            help="run only these studies (repeat; default all three)")
             s.add_argument("--result", action="append", default=None, metavar="KEY",

@@ -1,9 +1,12 @@
 """Mesh and time-step studies: ``fvsolver converge CASE``.
 
 The case is run on ``levels`` refinements in three studies: the mesh and the time tolerance
-refined together (every cell count times ``ratio``, the tolerance divided by ``ratio**2`` so
-that a second-order spatial error and a time error proportional to the tolerance fall
-alike), the mesh alone (the case's tolerance) and the time tolerance alone (the case's mesh).
+refined together (every cell count times ``ratio``, the tolerance divided by ``ratio**3``), the
+mesh alone (the case's tolerance) and the time tolerance alone (the case's mesh).  The stepper
+bounds each step's local error (BDF2: ~ dt^3), so its steps scale as tolerance^(1/3) and its
+global error, ~ dt^2, as tolerance^(2/3): dividing the tolerance by ``ratio**3`` shortens the
+steps by ``ratio`` with the cell size, and the spatial and time errors fall alike.  The time
+study measures its order against the step size, taken as tolerance^(1/3).
 Level 0 is the case itself, shared by the three studies. For every headline result the finest
 three levels of each study give the apparent order, the extrapolated value and the grid
 convergence index (:mod:`fvsolver.studies.gci`, Celik et al. 2008); with more levels, the
@@ -28,6 +31,8 @@ STUDIES = {"both": "mesh and time tolerance together", "mesh": "mesh alone", "ti
 QUANTITIES = ("time_to_target_s", "period_s", "min_temperature_k", "max_temperature_k")
 #: the formal spatial order of the finite-volume scheme (verified by the verification cases)
 MESH_ORDER = 2.0
+#: the tolerance falls by ratio**TIME_EXPONENT per level: the step then falls by ratio
+TIME_EXPONENT = 3
 #: consecutive apparent orders that differ by more than this fraction: not yet asymptotic
 ORDER_SPREAD = 0.3
 CONVERGE_REPORT_NAME = "converge.md"
@@ -86,7 +91,7 @@ def plan(case: Case, levels: int = 3, ratio: float = 1.5, studies: Sequence[str]
     def refinement(m: int, t: int) -> Refinement:
         changes = {f"mesh.{k}": max(int(round(v * ratio ** m)), v) for k, v in counts.items()} if m else {}
         if t:
-            changes["numerics.tolerance"] = tolerance / ratio ** (2 * t)
+            changes["numerics.tolerance"] = tolerance / ratio ** (TIME_EXPONENT * t)
         with_changes(case, changes)  # validated now
         return Refinement(m, t, changes)
 
@@ -104,8 +109,8 @@ def plan(case: Case, levels: int = 3, ratio: float = 1.5, studies: Sequence[str]
 def analyse(study: str, quantity: str, summaries: Sequence[dict], tolerances: Sequence[float]) -> QuantityResult:
     """The convergence of ``quantity`` over a study's runs (coarsest first)."""
     values = [hl.value(s, quantity) for s in summaries]
-    if study == "time":
-        sizes = tuple(float(t) for t in tolerances)
+    if study == "time":  # the step's size, ~ tolerance^(1/TIME_EXPONENT)
+        sizes = tuple(float(t) ** (1.0 / TIME_EXPONENT) for t in tolerances)
         size_of = {"sizes": sizes[-3:]}
     else:
         sizes = tuple(float(s.get("n_cells") or math.nan) for s in summaries)
@@ -169,9 +174,11 @@ def write_converge_report(folder: Path, title: str, runs: list[dict], results: S
                           ratio: float, quantities: Sequence[str] = QUANTITIES) -> Path:
     lines = [f"# {title}", "",
              f"Refinement ratio {ratio:g} per level in every cell count; the time tolerance divided by "
-             f"{ratio ** 2:g} per level. Grid convergence index by Celik et al., J. Fluids Eng. 130 (2008) "
+             f"{ratio ** TIME_EXPONENT:g} per level (the steps, which bound each step's local error, then "
+             f"shorten by {ratio:g}). Grid convergence index by Celik et al., J. Fluids Eng. 130 (2008) "
              "078001 (safety factor 1.25, from the finest three levels of each study; representative cell "
-             "size h = N^(-1/2) for the axisymmetric mesh; the tolerance itself for the time study).", "",
+             "size h = N^(-1/2) for the axisymmetric mesh; the step, as tolerance^(1/3), for the time "
+             "study).", "",
              "## Results", "", "```", table(results), "```", ""]
     notes = [f"- {r.study} / {r.quantity}: {r.note}" for r in results if r.note]
     if notes:
@@ -230,7 +237,7 @@ def converge(case: Case, out: str | Path | None, levels: int = 3, ratio: float =
         ref = distinct[name]
         summaries[name] = summary
         rows[name] = {"run": name, "mesh_level": ref.mesh_level, "time_level": ref.time_level,
-                      "n_cells": summary.get("n_cells"), "tolerance": tolerance / ratio ** (2 * ref.time_level),
+                      "n_cells": summary.get("n_cells"), "tolerance": tolerance / ratio ** (TIME_EXPONENT * ref.time_level),
                       **{q: hl.value(summary, q) for q in quantities}, "status": summary.get("status"),
                       "reason": reason or summary.get("reason"), "wall_time_s": round(seconds, 3)}
         if progress is not None:
@@ -246,7 +253,7 @@ def converge(case: Case, out: str | Path | None, levels: int = 3, ratio: float =
             if all(hl.value(summaries[r.name], q) is None for r in refs):
                 continue  # a result these runs do not have (a period of a device that only reaches a target)
             results.append(analyse(study, q, [summaries[r.name] for r in refs],
-                                   [tolerance / ratio ** (2 * r.time_level) for r in refs]))
+                                   [tolerance / ratio ** (TIME_EXPONENT * r.time_level) for r in refs]))
     if folder is not None:
         atomic_write_text(folder / "converge.csv", _table(runs))
         info = {"case_file": str(case.path) if case.path else None, "case_sha256": case.sha256, "levels": levels,

@@ -1,6 +1,6 @@
 """The climate envelope: one case over a grid of room temperature and relative humidity.
 
-``fvsolver envelope CASE --temperature 288.15:308.15:10 --humidity 0.3:0.98:10`` runs the grid
+``fvsolver envelope CASE --temperature "linspace(288.15,308.15,10)" --humidity "linspace(0.3,0.98,10)"`` runs the grid
 through :func:`fvsolver.sweeps.sweep` (so every room is validated before the first run and each
 run keeps its folder under ``runs/``) and adds the operating map:
 
@@ -66,14 +66,14 @@ class Envelope:
 
 
 def parse_axis(key: str, spec: str, option: str) -> Vary:
-    """``START:STOP:N`` or ``V1,V2,...`` for one axis of the map (at least two values)."""
+    """``linspace(START,STOP,N)`` or ``V1,V2,...`` for one axis of the map (at least two values)."""
     try:
         vary = parse_vary(f"{key}={spec}")
     except CaseError as exc:
         raise CaseError(str(exc).replace(f"--vary '{key}={spec}'", f"{option} {spec!r}")) from None
     values = vary.values
     if len(values) < 2 or not all(isinstance(v, int | float) and not isinstance(v, bool) for v in values):
-        raise CaseError(f"{option} {spec!r}: expected at least two numbers (START:STOP:N or V1,V2,...) for a map")
+        raise CaseError(f"{option} {spec!r}: expected at least two numbers (linspace(START,STOP,N) or V1,V2,...) for a map")
     if len(set(values)) != len(values):
         raise CaseError(f"{option} {spec!r}: a value is given twice; give each once")
     return Vary(key, tuple(sorted(float(v) for v in values)))
@@ -102,8 +102,12 @@ def build_envelope(rows: Sequence[Mapping], temperatures: Sequence[float], humid
         i, j = divmod(k, n_h)
         summary = _summary_of(folder, row)
         v = hl.value(summary, result)
-        values[i, j] = np.nan if v is None else v
         outcomes[i, j] = hl.outcome(row if row.get("status") != "complete" else summary)
+        if v is None and result == "period_s" and outcomes[i, j] == "running" and summary.get("last_period_s"):
+            # still tipping at the end, its period not yet settled: mapped by its last period, marked
+            v = hl.value(summary, "last_period_s")
+            outcomes[i, j] = "running, not settled"
+        values[i, j] = np.nan if v is None else v
         room = summary.get("room") or {}
         table.append({"run": row["run"], "air_temperature_k": float(temperatures[i]),
                       "air_temperature_c": round(float(temperatures[i]) - 273.15, 6),

@@ -44,6 +44,10 @@ class Headline:
 HEADLINES: dict[str, Headline] = {h.name: h for h in (
     Headline("time_to_target_s", "time to target", "s"),
     Headline("period_s", "period of the cycle", "s"),
+    Headline("first_tip_s", "first tip", "s"),
+    Headline("dips_per_hour", "dips per hour", "1/h"),
+    Headline("water_per_day_kg", "water per day", "kg"),
+    Headline("evaporative_cooling_w", "evaporative cooling", "W"),
     Headline("min_temperature_k", "lowest temperature", "K", -273.15, "°C"),
     Headline("max_temperature_k", "highest temperature", "K", -273.15, "°C"),
     Headline("max_pressure_drop_pa", "largest pressure difference", "Pa"),

@@ -3,7 +3,7 @@ from __future__ import annotations
 
 import pytest
 
-from fvsolver.outputs.report import REPORT_NAME, format_duration, format_pressure, write_report
+from fvsolver.outputs.report import REPORT_NAME, format_duration, format_pressure, result_paragraph, write_report
 
 INPUTS = {"room air temperature (K)": 296.15, "relative humidity (-)": 0.4, "working fluid": "dichloromethane"}
 
@@ -147,3 +147,15 @@ def test_report_with_odd_values(tmp_path):
     table = _section(text, "Inputs")
     assert "| cap polar range (deg) | 0, 100 |" in table
     assert "| pipe \\| note | a\\|b |" in table and "| dry run | no |" in table
+
+
+def test_a_running_device_report_speaks_of_tips_not_of_a_target():
+    base = {"status": "complete", "target_reached": True, "time_to_target_s": 21.06, "first_tip_s": 21.06,
+            "target_pressure_drop_pa": 647.0, "max_pressure_drop_pa": 647.3, "end_time_s": 73.55, "n_cycles": 10,
+            "outcome": "running", "field_times_not_reached_s": [300.0]}
+    text = result_paragraph(base)
+    assert "first tipped after 21.06 s" in text and "centre of mass to the pivot" in text
+    assert "reached the target" not in text and "target crossing" not in text and "run's end" in text
+    never = result_paragraph({**base, "first_tip_s": None, "n_cycles": 0, "outcome": "never_tips",
+                              "target_reached": False, "max_pressure_drop_pa": 400.0})
+    assert "never tipped" in never and "400 Pa" in never

@@ -23,8 +23,8 @@ def test_the_plan_scales_cell_counts_and_tolerance_and_shares_the_case_as_level_
     assert mesh[1].changes["mesh.polar_cells"] == 30 and mesh[2].changes["mesh.polar_cells"] == 45
     assert mesh[2].changes["mesh.glass_cells"] == round(2 * 2.25)
     assert "numerics.tolerance" not in mesh[2].changes
-    assert time[2].changes == {"numerics.tolerance": pytest.approx(0.02 / 1.5 ** 4)}
-    assert both[1].changes["numerics.tolerance"] == pytest.approx(0.02 / 1.5 ** 2)
+    assert time[2].changes == {"numerics.tolerance": pytest.approx(0.02 / 1.5 ** 6)}  # steps / 1.5 per level
+    assert both[1].changes["numerics.tolerance"] == pytest.approx(0.02 / 1.5 ** 3)
 
 
 @pytest.mark.parametrize("kwargs, message", [

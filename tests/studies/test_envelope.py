@@ -14,12 +14,15 @@ from fvsolver.studies.envelope import (HUMIDITY_KEY, TEMPERATURE_KEY, _spans, bu
 
 
 def test_axes_take_ranges_and_lists_and_refuse_single_values():
-    assert parse_axis(TEMPERATURE_KEY, "288.15:298.15:3", "--temperature").values == (288.15, 293.15, 298.15)
+    assert parse_axis(TEMPERATURE_KEY, "linspace(288.15,298.15,3)", "--temperature").values == (288.15, 293.15,
+                                                                                                 298.15)
+    with pytest.warns(FutureWarning, match="linspace"):  # the older range syntax still reads, with a warning
+        assert parse_axis(TEMPERATURE_KEY, "288.15:298.15:3", "--temperature").values == (288.15, 293.15, 298.15)
     assert parse_axis(HUMIDITY_KEY, "0.9,0.3", "--humidity").values == (0.3, 0.9)  # sorted for the map
     with pytest.raises(CaseError, match="--humidity '0.5': expected at least two numbers"):
         parse_axis(HUMIDITY_KEY, "0.5", "--humidity")
-    with pytest.raises(CaseError, match="--temperature '290:x:3'"):
-        parse_axis(TEMPERATURE_KEY, "290:x:3", "--temperature")
+    with pytest.raises(CaseError, match=r"--temperature 'linspace\(290,x,3\)'"):
+        parse_axis(TEMPERATURE_KEY, "linspace(290,x,3)", "--temperature")
     with pytest.raises(CaseError, match="given twice"):
         parse_axis(HUMIDITY_KEY, "0.5,0.5", "--humidity")
 
@@ -44,6 +47,16 @@ def test_the_map_knows_where_the_device_runs():
 
     assert "runs in 3 of 6 rooms" in text and f"from {format_duration(20.0)} to {format_duration(60.0)}" in text
     assert [r["runs"] for r in env.rows] == [True, True, False, True, False, False]
+
+
+def test_a_running_device_still_tipping_but_not_settled_is_mapped_by_its_last_period():
+    rows = [{**_row(k, True, 20.0), "outcome": outcome, "period_s": period, "last_period_s": last}
+            for k, (outcome, period, last) in enumerate([("running", 5.3, 5.3), ("running", None, 9.5),
+                                                          ("never_tips", None, None), ("stopped", None, 40.0)])]
+    env = build_envelope(rows, (290.15, 300.15), (0.3, 0.9), "period_s")
+    assert env.values[0, 0] == 5.3 and env.values[0, 1] == 9.5
+    assert env.outcomes[0, 1] == "running, not settled" and env.outcomes[1, 0] == "never_tips"
+    assert env.runs.tolist() == [[True, True], [False, False]]
 
 
 def test_humidity_spans_of_consecutive_points():

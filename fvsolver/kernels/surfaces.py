@@ -1,0 +1,182 @@
+"""The coupled surfaces' balances, solved face by face in one compiled loop (numba).
+
+Every face of a coupled patch carries one row of parameters (``PARAMETERS`` columns) and a
+kind: a dry surface (convection, radiation, an imposed flux; a pool's contact is convection to
+the pool's temperature), the wet cap (the same plus evaporation of water) or a condensing wall
+(Hertz-Knudsen-Schrage condensation of the working fluid, q = L j). The balance
+
+.. math:: \\kappa (T_s - T_P) = q(T_s)
+
+is solved by Newton's method safeguarded by bisection inside a bracket (q decreases with T_s for
+every kind, so the root is unique). The Python twin is the terms' own ``heat_flux`` through
+``fvsolver.surface_balance.solve_surface``; the tests compare them.
+
+Short symbols only here: t temperature (K), q heat flux into the body (W/m2), m mass flux
+(kg/(m2 s); condensation positive on a wall, evaporation positive on the cap), L latent heat.
+"""
+from __future__ import annotations
+
+import numpy as np
+
+from fvsolver.kernels import jit
+from fvsolver.kernels.properties import if97_with_slope as _if97
+
+# kinds of face
+DRY, CAP, WALL = 0, 1, 2
+# parameter columns (per face)
+H, T_AIR, RADIATION, T_SURROUNDINGS, EXTRA, EVAPORATION, RHO_AIR, P_VAPOUR, INVENTORY = range(9)
+PARAMETERS = 9
+# output columns (per face)
+TS, Q, DQ, M, DM, DM_DP, DM_DC, LATENT = range(8)
+OUTPUTS = 8
+# fluid constants of a condensing wall (one vector)
+(BETA, FILM_REFERENCE, T_LOW, T_HIGH, WAGNER_TC, WAGNER_PC, WA, WB, WC, WD, LATENT_TC, L0, L1, L2, L3, L4,
+ LATENT_RTC, MOLAR_MASS, FLUX_SMOOTHING) = range(19)
+FLUID_CONSTANTS = 19
+# water: IAPWS-IF97 region 4 and PPDS12, from fvsolver.properties.water
+WATER_T_MIN, WATER_T_MAX = 273.16, 372.0
+
+
+def water_constants() -> tuple[np.ndarray, np.ndarray]:
+    """IF97's n1..n10 and [PPDS12 tc, R tc, M, M/R, A..E] of water, from fvsolver.properties.water."""
+    from fvsolver.properties import water as w
+
+    latent = np.array([w._PPDS12_TC, w._R * w._PPDS12_TC, w.MOLAR_MASS, w.MOLAR_MASS / w._R, *w._PPDS12])
+    return np.ascontiguousarray(w._N_ARRAY, dtype=np.float64), latent
+
+
+@jit
+def _ppds12(t, tc, c0, c1, c2, c3, c4, r_tc, m):
+    """Latent heat (J/kg) and its T-derivative, PPDS eq. 12."""
+    tau = 1.0 - t / tc
+    lat = r_tc * (c0 * tau ** (1 / 3) + c1 * tau ** (2 / 3) + c2 * tau + c3 * tau**2 + c4 * tau**6) / m
+    dtau = (c0 / 3.0 * tau ** (-2 / 3) + 2.0 * c1 / 3.0 * tau ** (-1 / 3) + c2 + 2.0 * c3 * tau
+            + 6.0 * c4 * tau**5)
+    return lat, -r_tc * dtau / (m * tc)
+
+
+@jit
+def _face_flux(kind, ts, p, fl, water, wl):
+    """q, dq/dT_s, m, dm/dT_s, dm/dp_v, dm/dc and L of one face at T_s = ts."""
+    q = p[H] * (p[T_AIR] - ts) + p[RADIATION] * (p[T_SURROUNDINGS] ** 4 - ts**4) + p[EXTRA]
+    dq = -p[H] - 4.0 * p[RADIATION] * ts**3
+    m = 0.0
+    dm = 0.0
+    dm_dp = 0.0
+    dm_dc = 0.0
+    lat = 0.0
+    if kind == CAP:
+        t = min(max(ts, WATER_T_MIN), WATER_T_MAX)
+        ps, dps = _if97(t, water)
+        k = wl[3]  # M_w / R
+        rho = k * ps / t
+        drho = k * (dps / t - ps / t**2)
+        m = p[EVAPORATION] * (rho - p[RHO_AIR])
+        dm = p[EVAPORATION] * drho
+        lat, dlat = _ppds12(t, wl[0], wl[4], wl[5], wl[6], wl[7], wl[8], wl[1], wl[2])
+        q -= lat * m
+        dq -= lat * dm + dlat * m
+    elif kind == WALL:
+        t = min(max(ts, fl[T_LOW]), fl[T_HIGH])
+        tc = fl[WAGNER_TC]
+        tau = 1.0 - t / tc
+        f = fl[WA] * tau + fl[WB] * tau**1.5 + fl[WC] * tau**2.5 + fl[WD] * tau**5
+        df = fl[WA] + 1.5 * fl[WB] * tau**0.5 + 2.5 * fl[WC] * tau**1.5 + 5.0 * fl[WD] * tau**4
+        ps = fl[WAGNER_PC] * np.exp(f * tc / t)
+        tr = t / tc
+        dps = ps * (-(df * tr + f) / (tc * tr**2))
+        root = np.sqrt(t)
+        excess = p[P_VAPOUR] - ps
+        beta = fl[BETA]
+        raw = beta * excess / root
+        draw_dt = -beta * (dps / root + 0.5 * excess / (t * root))
+        draw_dp = beta / root
+        # j = phi raw + (1 - phi) s(raw): s a smooth positive part of raw (width eps), so only the
+        # re-evaporating part is limited by phi = c / (c + c_ref), what the face holds
+        c = max(p[INVENTORY], 0.0)
+        cr = fl[FILM_REFERENCE]
+        phi = c / (c + cr)
+        dphi = cr / (c + cr) ** 2  # the right derivative at c = 0
+        eps = fl[FLUX_SMOOTHING]
+        x = raw / eps
+        if x > 40.0:
+            plus = raw
+            sig = 1.0
+        elif x < -40.0:
+            plus = eps * np.exp(x)
+            sig = np.exp(x)
+        else:
+            plus = eps * np.log1p(np.exp(x))
+            sig = 1.0 / (1.0 + np.exp(-x))
+        m = phi * raw + (1.0 - phi) * plus
+        dj_draw = phi + (1.0 - phi) * sig
+        dm = dj_draw * draw_dt
+        dm_dp = dj_draw * draw_dp
+        dm_dc = (raw - plus) * dphi
+        lat, dlat = _ppds12(t, fl[LATENT_TC], fl[L0], fl[L1], fl[L2], fl[L3], fl[L4], fl[LATENT_RTC], fl[MOLAR_MASS])
+        q += lat * m
+        dq += lat * dm + dlat * m
+    return q, dq, m, dm, dm_dp, dm_dc, lat
+
+
+@jit
+def solve_surfaces(kinds, params, kappa, t_foot, guess, fluid, water, water_latent, out):
+    """Surface temperatures of coupled faces: kappa (T_s - T_foot) = q(T_s), face by face.
+
+    kinds : (n,) int64; params : (n, PARAMETERS); kappa, t_foot, guess : (n,) (guess <= 0: start
+    at t_foot); fluid : (FLUID_CONSTANTS,); water : IF97 n1..n10; water_latent : PPDS12 tc, R tc,
+    M, M/R, A..E (``water_constants()``); out : (n, OUTPUTS).
+    """
+    for i in range(kinds.shape[0]):
+        kind = kinds[i]
+        p = params[i]
+        kp = kappa[i]
+        tf = t_foot[i]
+        x = guess[i] if guess[i] > 0.0 else tf
+        lo = x - 0.5
+        hi = x + 0.5
+        q, dq, _, _, _, _, _ = _face_flux(kind, lo, p, fluid, water, water_latent)
+        flo = kp * (lo - tf) - q
+        q, dq, _, _, _, _, _ = _face_flux(kind, hi, p, fluid, water, water_latent)
+        fhi = kp * (hi - tf) - q
+        for _ in range(200):  # widen the bracket until F(lo) <= 0 <= F(hi)
+            if flo <= 0.0 and fhi >= 0.0:
+                break
+            w = hi - lo
+            if flo > 0.0:
+                lo -= w
+                q, dq, _, _, _, _, _ = _face_flux(kind, lo, p, fluid, water, water_latent)
+                flo = kp * (lo - tf) - q
+            if fhi < 0.0:
+                hi += w
+                q, dq, _, _, _, _, _ = _face_flux(kind, hi, p, fluid, water, water_latent)
+                fhi = kp * (hi - tf) - q
+        for _ in range(200):
+            q, dq, _, _, _, _, _ = _face_flux(kind, x, p, fluid, water, water_latent)
+            f = kp * (x - tf) - q
+            df = kp - dq
+            if f <= 0.0:
+                lo = x
+                flo = f
+            else:
+                hi = x
+                fhi = f
+            new = x - f / df
+            if not (new >= lo and new <= hi):  # outside the bracket (across a kink): secant, or halve
+                den = fhi - flo
+                new = (lo * fhi - hi * flo) / den if den > 0.0 else 0.5 * (lo + hi)
+                if not (new > lo and new < hi):
+                    new = 0.5 * (lo + hi)
+            done = abs(new - x) <= 2e-15 * abs(x) or hi - lo <= 4e-15 * abs(x)
+            x = new
+            if done:
+                break
+        q, dq, m, dm, dm_dp, dm_dc, lat = _face_flux(kind, x, p, fluid, water, water_latent)
+        out[i, TS] = x
+        out[i, Q] = q
+        out[i, DQ] = dq
+        out[i, M] = m
+        out[i, DM] = dm
+        out[i, DM_DP] = dm_dp
+        out[i, DM_DC] = dm_dc
+        out[i, LATENT] = lat
