@@ -114,13 +114,24 @@ def _say(args, text: str) -> None:
 
 
 def _run(args) -> int:
+    import contextlib
+
+    from fvsolver.outputs.painter import Painter, idle_core
+
+    # on a free core, a helper process imports the plotting while this one sets up and steps
+    with Painter() if idle_core() else contextlib.nullcontext() as painter:
+        return _run_case(args, painter)
+
+
+def _run_case(args, painter) -> int:
     from fvsolver.case import load_case
-    from fvsolver.pipeline import run
 
     if args.resume is not None and args.out is not None and args.out.resolve() != args.resume.resolve():
         raise CaseError(f"--resume {args.resume} --out {args.out}: a resumed run continues in its own folder; "
                         "leave out --out (or copy the folder first and resume the copy)")
-    case = load_case(args.case)
+    case = load_case(args.case)  # a case-file error is reported before the solver is imported
+    from fvsolver.pipeline import run
+
     out = args.resume or args.out or Path("results") / args.case.stem
     if args.resume is None and not args.overwrite:
         out = _fresh_folder(args, out)
@@ -129,7 +140,7 @@ def _run(args) -> int:
         with stop_signals_as_interrupt() as stop:  # SIGTERM stops the run as Ctrl-C does
             result = run(case, out, overwrite=args.overwrite, argv=sys.argv, resume=args.resume is not None,
                          progress=bar, checkpoint_every=args.checkpoint_every,
-                         uncertainty=args.uncertainty and args.resume is None)
+                         uncertainty=args.uncertainty and args.resume is None, painter=painter)
     finally:
         if bar is not None:
             bar.close()
@@ -303,9 +314,10 @@ def _check(args) -> int:
     from fvsolver.case import load_case
 
     from fvsolver.case.limits import estimate
+
+    case = load_case(args.case)  # a case-file error is reported before the solver is imported
     from fvsolver.case.setup_check import build_checked
 
-    case = load_case(args.case)
     build_checked(case)
     _input_warnings(case)  # only for a case that can be set up: its errors come first
     _say(args, f"{args.case}: valid (schema {case['schema_version']}, sha256 {case.sha256[:12]}; "

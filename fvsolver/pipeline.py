@@ -19,7 +19,7 @@ from fvsolver.case.writer import dumps
 from fvsolver.conduction import heat_flux_vectors
 from fvsolver.errors import CaseError, SolverError
 from fvsolver.outputs.files import atomic_write_text
-from fvsolver.outputs.paths import clean_partial_files
+from fvsolver.outputs.paths import clean_partial_files, prepare_output  # noqa: F401 (callers import it here)
 from fvsolver.safeguards import StateWatch, plain_title
 from fvsolver.stepper import TimeStepper
 
@@ -127,35 +127,9 @@ class FieldWriter:
         write_pvd(self.folder / "fields.pvd", self.entries)
 
 
-def _unfinished(folder: Path) -> bool:
-    """A run stopped before its end: no summary, or one that says interrupted."""
-    try:
-        return json.loads((folder / "summary.json").read_text()).get("status") == "interrupted"
-    except (OSError, ValueError, AttributeError):
-        return True
-
-
-def prepare_output(out: Path, overwrite: bool) -> Path:
-    from fvsolver.outputs.paths import output_folder
-
-    out = Path(out)
-    if out.is_dir() and any(out.iterdir()) and not overwrite:
-        if (out / "checkpoint.json").exists() and _unfinished(out):
-            raise CaseError(f"--out {out}: holds the checkpoint of an unfinished run; continue it with "
-                            f"--resume {out}, or start again with --overwrite")
-        raise CaseError(f"--out {out}: the folder exists and is not empty (expected a new or empty folder); "
-                        "choose another folder or pass --overwrite")
-    output_folder(out)
-    clean_partial_files(out)
-    stale = out / "summary.json"
-    if stale.exists():  # never leave an old summary that claims a result for this run
-        stale.unlink()
-    return out
-
-
 def run(case: Case, out: str | Path | None = None, overwrite: bool = False, progress=None,
         argv: list[str] | None = None, resume: bool = False, checkpoint_every: float = 30.0,
-        plots: bool = True, uncertainty: bool = False) -> Result:
+        plots: bool = True, uncertainty: bool = False, painter=None) -> Result:
     """Run ``case``; write outputs into ``out`` when given.
 
     Parameters
@@ -169,6 +143,7 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
     plots : draw the PNG plots and write report.md (a sweep leaves them out by default)
     uncertainty : estimate the numerical uncertainty of the time to target from two cheaper
         companion runs (:mod:`fvsolver.outputs.uncertainty`) and report it
+    painter : a :class:`fvsolver.outputs.painter.Painter` to draw the plots in (None: here)
     """
     import time as wall
 
@@ -308,6 +283,13 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
             _write_csv(folder / "cycles.csv", cycle.cycles or [{"cycle": None}])
         # the summary first: the computed result is kept whatever the extras below do
         atomic_write_text(folder / "summary.json", json.dumps(summary, indent=2))
+    figures: tuple | Exception = ("", [])
+    if folder is not None and plots:  # asked for first: a painter draws them while the companion runs run
+        try:
+            figures = _start_figures(folder, case, setup, summary, history, fields,
+                                     cycle.cycles if cycle else (), painter)
+        except Exception as exc:  # reported below, as a failure of the drawing itself
+            figures = exc
     if uncertainty and monitor is not None and cycle is None and status == "complete":  # a stopped run exits now
         from fvsolver.outputs.uncertainty import estimate
 
@@ -321,8 +303,7 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
     if folder is not None:
         if plots:
             try:
-                _write_plots_and_report(folder, case, setup, summary, history, fields,
-                                        cycle.cycles if cycle else ())
+                _write_plots_and_report(folder, case, summary, figures)
             except Exception as exc:  # only the physics decides the status
                 summary["warnings"].append(f"the plots or the report could not be written ({type(exc).__name__}: "
                                            f"{str(exc)[:200]}); the results are in summary.json, history.csv and "
@@ -396,33 +377,45 @@ def _chosen_fields(fields, summary, most: int = 8) -> list:
     return chosen
 
 
-def _write_plots_and_report(folder: Path, case, setup, summary, history, fields, cycles=()) -> None:
-    from fvsolver.outputs.report import write_report
+def _start_figures(folder: Path, case, setup, summary, history, fields, cycles=(), painter=None) -> tuple:
+    """The run's figures asked for (drawn by ``painter``'s helper process meanwhile, or here when
+    waited for): ``(scenario, [(png name, drawing)])``."""
+    from fvsolver.outputs.painter import draw_here
     from fvsolver.outputs.scenario import scenario_text
-    from fvsolver.plotting import history_plot, temperature_field_plot
 
-    plots = []
+    draw = painter.draw if painter is not None else draw_here
+    figures = []
     scenario = scenario_text(case, summary.get("target_pressure_drop_pa"))
     if fields is not None and fields.fields:
         chosen = _chosen_fields(fields, summary)
         notes = ["target reached" if t == summary.get("time_to_target_s") else
                  ("end" if t == summary["end_time_s"] else "") for t, _ in chosen]
-        temperature_field_plot(setup.mesh, [T for _, T in chosen], folder / "temperature_field.png",
-                               times=[t for t, _ in chosen], title=plain_title(case["title"]), subtitle=scenario,
-                               notes=notes)
-        plots.append("temperature_field.png")
+        figures.append(("temperature_field.png", draw(
+            "temperature_field_plot", setup.mesh, [T for _, T in chosen], folder / "temperature_field.png",
+            times=[t for t, _ in chosen], title=plain_title(case["title"]), subtitle=scenario, notes=notes)))
     if "pressure_drop_pa" in history:
-        history_plot(history, folder / "history.png", summary["target_pressure_drop_pa"],
-                     summary["time_to_target_s"], title=plain_title(case["title"]), subtitle=scenario,
-                     max_pressure_drop_pa=summary.get("max_pressure_drop_pa"))
-        plots.append("history.png")
+        figures.append(("history.png", draw(
+            "history_plot", history, folder / "history.png", summary["target_pressure_drop_pa"],
+            summary["time_to_target_s"], title=plain_title(case["title"]), subtitle=scenario,
+            max_pressure_drop_pa=summary.get("max_pressure_drop_pa"))))
     if cycles:
-        from fvsolver.plotting import cycle_plot
+        figures.append(("cycles.png", draw("cycle_plot", history, list(cycles), folder / "cycles.png",
+                                           title=plain_title(case["title"]), subtitle=scenario)))
+    return scenario, figures
 
-        cycle_plot(history, cycles, folder / "cycles.png", title=plain_title(case["title"]), subtitle=scenario)
-        plots.append("cycles.png")
+
+def _write_plots_and_report(folder: Path, case, summary, figures) -> None:
+    """Wait for the figures of :func:`_start_figures`, then write report.md (with the summary's
+    numerical uncertainty, when the companion runs estimated it meanwhile)."""
+    from fvsolver.outputs.report import write_report
+
+    if isinstance(figures, Exception):
+        raise figures
+    scenario, drawings = figures
+    for _, drawing in drawings:
+        drawing.wait()
     write_report(folder, summary, plain_title(case["title"] or (case.path.stem if case.path else "case")),
-                 _inputs(case), plots, scenario=scenario)
+                 _inputs(case), [name for name, _ in drawings], scenario=scenario)
 
 
 def _inputs(case) -> dict:

@@ -7,25 +7,36 @@ from pathlib import Path
 from typing import TYPE_CHECKING
 
 import matplotlib
+import matplotlib.cm
+import matplotlib.colors
+import matplotlib.ticker
+import numpy as np
+from matplotlib.collections import LineCollection, PolyCollection
+from matplotlib.colors import Normalize
+# Figures are made without pyplot: no GUI backend is ever chosen or imported, no figure manager
+# keeps them alive, and PNGs are written by the Agg canvas (files only; never a window).
+from matplotlib.figure import Figure
 
-matplotlib.use("Agg")  # files only; never a window
-import matplotlib.pyplot as plt  # noqa: E402
-import matplotlib.ticker  # noqa: E402
-from matplotlib.collections import LineCollection, PolyCollection  # noqa: E402
-from matplotlib.colors import Normalize  # noqa: E402
-import numpy as np  # noqa: E402
-
-from fvsolver.outputs.files import atomic_write_bytes  # noqa: E402
-from fvsolver.outputs.report import format_duration, format_pressure  # noqa: E402
+from fvsolver.outputs.files import atomic_write_bytes
+from fvsolver.outputs.report import format_duration, format_pressure
 
 if TYPE_CHECKING:  # pragma: no cover
     from fvsolver.mesh.core import Mesh
 
 
+_FIGURE_KEYS = ("figsize", "layout", "constrained_layout")
+
+
+def _subplots(nrows: int = 1, ncols: int = 1, **options):
+    """``(figure, axes)`` as ``pyplot.subplots`` gives them, on a figure pyplot never sees."""
+    fig = Figure(**{k: options.pop(k) for k in _FIGURE_KEYS if k in options})
+    return fig, fig.subplots(nrows, ncols, **options)
+
+
 def _save(fig, path: Path) -> None:
     buf = io.BytesIO()
+    # "tight" costs a second draw, but a legend row wider than its panel would be cut off without it
     fig.savefig(buf, format="png", dpi=130, bbox_inches="tight")
-    plt.close(fig)
     atomic_write_bytes(Path(path), buf.getvalue())
 
 
@@ -34,7 +45,7 @@ def convergence_plot(reports, path: Path) -> None:
     n = len(reports)
     cols = min(4, n)
     rows = int(np.ceil(n / cols))
-    fig, axes = plt.subplots(rows, cols, figsize=(3.6 * cols, 3.0 * rows), squeeze=False)
+    fig, axes = _subplots(rows, cols, figsize=(3.6 * cols, 3.0 * rows), squeeze=False)
     for ax, rep in zip(axes.ravel(), reports):
         h = np.asarray(rep.h)
         for norm, errors in rep.errors.items():
@@ -226,7 +237,7 @@ def temperature_field_plot(
     n = len(fields)
     n_cols = min(n, 4)
     n_rows = -(-n // n_cols)
-    fig, grid = plt.subplots(
+    fig, grid = _subplots(
         n_rows, n_cols, figsize=(panel_w * n_cols + 1.9, (panel_h + 0.5) * n_rows + (0.9 if title else 0.4)),
         squeeze=False, sharex=True, sharey=True, layout="constrained",
     )
@@ -421,7 +432,7 @@ def history_plot(
     kinds = (["pressure"] + (["temperature"] if temps else []) + (["rates"] if rates or water else [])
              + (["power"] if power else []))
     ratios = [1.35] + [1.0] * (len(kinds) - 1)
-    fig, axes = plt.subplots(
+    fig, axes = _subplots(
         len(kinds), 1, sharex=True, squeeze=False, layout="constrained",
         figsize=(8.0, 1.2 + 2.5 * sum(ratios)), gridspec_kw={"height_ratios": ratios},
     )
@@ -585,7 +596,7 @@ def sweep_plot(rows: Sequence[Mapping], keys: Sequence[str], path: Path, title: 
         groups.setdefault(tuple(r[k] for k in others), []).append(r)
     reached = [r.get(result) for r in rows if r.get(result) is not None]
     top = 1.08 * max(reached) if reached else 1.0
-    fig, ax = plt.subplots(figsize=(7.0, 4.2), layout="constrained")
+    fig, ax = _subplots(figsize=(7.0, 4.2), layout="constrained")
     ax.grid(True, lw=0.4, alpha=0.45)
     for label, members in groups.items():
         members = sorted(members, key=lambda r: r[first])
@@ -639,8 +650,8 @@ def envelope_plot(temperatures: np.ndarray, humidities: np.ndarray, values: np.n
     rh = 100.0 * np.asarray(humidities, float)
     V = np.asarray(values, float).T + offset  # (n_h, n_t): rows along humidity
     runs = np.isfinite(V)
-    fig, ax = plt.subplots(figsize=(7.4, 5.0), layout="constrained")
-    cmap = plt.get_cmap("viridis")
+    fig, ax = _subplots(figsize=(7.4, 5.0), layout="constrained")
+    cmap = matplotlib.colormaps["viridis"]
     norm = None
     if runs.any():
         low, high = np.nanmin(V), np.nanmax(V)
@@ -702,7 +713,7 @@ def cycle_plot(history: Mapping[str, np.ndarray], cycles: Sequence[Mapping], pat
     subtitle : the computed scenario, shown under the title
     """
     t = np.asarray(history["time_s"], dtype=float)
-    fig, (top, bottom) = plt.subplots(2, 1, figsize=(8.0, 6.0), height_ratios=(2.0, 1.0), constrained_layout=True)
+    fig, (top, bottom) = _subplots(2, 1, figsize=(8.0, 6.0), height_ratios=(2.0, 1.0), constrained_layout=True)
     top.plot(t, np.asarray(history["pressure_drop_pa"], dtype=float), color="#1b6a8f", lw=1.2,
              label="pressure difference body - head")
     if "target_pressure_drop_pa" in history:
@@ -744,7 +755,7 @@ def fit_plot(time: np.ndarray, measured: Mapping[str, np.ndarray], computed: Map
     measured, computed : name -> (m,) values at those times (same names)
     """
     names = list(measured)
-    fig, axes = plt.subplots(2, len(names), figsize=(5.2 * len(names), 5.4), squeeze=False, sharex="col",
+    fig, axes = _subplots(2, len(names), figsize=(5.2 * len(names), 5.4), squeeze=False, sharex="col",
                              height_ratios=(2.2, 1.0), layout="constrained")
     for k, name in enumerate(names):
         top, bottom = axes[0, k], axes[1, k]

@@ -14,8 +14,10 @@ import contextlib
 import math
 import signal
 import threading
+from typing import TYPE_CHECKING
 
-import numpy as np
+if TYPE_CHECKING:  # numpy is imported where a run needs it: `--help` and `check` start without it
+    import numpy as np
 
 TITLE_LIMIT = 100  # characters of a title shown on a plot or in a report
 
@@ -87,6 +89,8 @@ class StateWatch:
     """
 
     def __init__(self, setup):
+        import numpy as np
+
         mesh = setup.mesh
         self.n_cells = mesh.n_cells
         self.material_of = np.asarray(mesh.material_names)[mesh.cell_material]
@@ -118,6 +122,8 @@ class StateWatch:
 
     def check(self, y: np.ndarray, t: float) -> str | None:
         """Record the extremes of the state ``y`` at time ``t``; the reason it is not physical, or None."""
+        import numpy as np
+
         T = y[: self.n_cells]
         if not np.all(np.isfinite(y)):
             return f"at t = {t:.6g} s the state holds values that are not finite"

@@ -11,12 +11,14 @@ from __future__ import annotations
 
 import contextlib
 import csv
+import importlib
 import io
 import itertools
 import json
 import math
 import os
 import re
+import sys
 import time as wall
 import warnings
 import tomllib
@@ -223,6 +225,18 @@ def _execute_in_worker(base: tuple, changes: dict, run_dir, overwrite: bool, plo
     return _execute(with_changes(case, changes), run_dir, overwrite, plots)
 
 
+def _estimated_cost(variant: Case) -> float:
+    """A run's relative cost before it runs: cells times the fewest steps it can take (the
+    size estimate of :mod:`fvsolver.case.limits`); 0 when it cannot be estimated."""
+    from fvsolver.case.limits import estimate
+
+    try:
+        e = estimate(variant.data)
+    except Exception:  # noqa: BLE001 - only the order of the runs depends on it
+        return 0.0
+    return float(e.cells) * float(max(e.steps, 1))
+
+
 @contextlib.contextmanager
 def _one_blas_thread_per_worker():
     """Workers started inside this block run their BLAS on one thread each (the sweep's
@@ -257,13 +271,27 @@ def sweep(case: Case, varies: list[Vary], out: str | Path | None = None, overwri
     summary entries of RESULT_COLUMNS (and CYCLE_COLUMNS for a whole device), the wall time and the
     run's folder.
     """
-    from fvsolver.pipeline import prepare_output
+    from fvsolver.outputs.paths import prepare_output
 
     if not (isinstance(jobs, int) and 1 <= jobs <= 256):
         raise CaseError(f"--jobs: got {jobs!r}, expected a whole number of runs at a time from 1 to 256 "
                         f"(this machine has {os.cpu_count()} cores)")
-    grid = variants(case, varies)  # every combination is checked before anything is written
-    folder = prepare_output(Path(out), overwrite) if out is not None else None
+    count = math.prod(len(v.values) for v in varies)
+    pool = None
+    if engine is None and jobs > 1 and count > 1:
+        from fvsolver import workers
+
+        # the workers start and import the solver while this process checks the grid; this
+        # process never imports the solver itself (each worker imports it once for all its runs)
+        with _one_blas_thread_per_worker():
+            pool = workers.start(min(jobs, count), modules=("fvsolver.pipeline",), shared=True)
+    try:
+        grid = variants(case, varies)  # every combination is checked before anything is written
+        folder = prepare_output(Path(out), overwrite) if out is not None else None
+    except BaseException:
+        if pool is not None:
+            workers.stop(pool)
+        raise
     done: dict[int, dict] = {}
     cycle_columns = case["geometry"]["shape"] == "whole_device"
 
@@ -281,6 +309,10 @@ def sweep(case: Case, varies: list[Vary], out: str | Path | None = None, overwri
         done[index] = row
         if folder is not None:
             atomic_write_text(folder / "sweep.csv", _table([done[i] for i in sorted(done)]))
+            if pool is not None and len(grid) - len(done) < jobs and "fvsolver.plotting" not in sys.modules:
+                # a worker has no run left to take: its core imports the plotting (matplotlib)
+                # for the sweep's plot now instead of after the last run
+                importlib.import_module("fvsolver.plotting")
         if progress is not None:
             progress(index, len(grid), changes, row)
         if row["status"] == "interrupted":
@@ -300,16 +332,17 @@ def sweep(case: Case, varies: list[Vary], out: str | Path | None = None, overwri
                  for i, (changes, _) in enumerate(grid)]
         engine.map(_execute_in_worker, calls, record,
                    lambda i, exc: ({"status": "failed"}, f"lost on the cluster: {type(exc).__name__}: {exc}", 0.0))
-    elif jobs == 1 or len(grid) == 1:
+    elif pool is None:
         for index, (_, variant) in enumerate(grid):
             record(index, _execute(variant, run_dir(index), overwrite, plots))
     else:
-        from fvsolver.workers import run_all
-
         base = (case.path, case.text, None if case.text else thaw(case.data))
-        tasks = {i: (base, changes, run_dir(i), overwrite, plots) for i, (changes, _) in enumerate(grid)}
+        # the dearest runs first: the runs started last then are short, and the workers finish together
+        order = sorted(range(len(grid)), key=lambda i: -_estimated_cost(grid[i][1]))
+        tasks = {i: (base, grid[i][0], run_dir(i), overwrite, plots) for i in order}
         with _one_blas_thread_per_worker():  # workers die with the sweep; a dead worker is a failed row
-            run_all(_execute_in_worker, tasks, jobs, record, lambda i, what: ({"status": "failed"}, what, 0.0))
+            workers.run_all(_execute_in_worker, tasks, jobs, record,
+                            lambda i, what: ({"status": "failed"}, what, 0.0), pool=pool)
     rows = [done[i] for i in sorted(done)]
     if folder is not None:
         from fvsolver.outputs.sweep_report import write_sweep_report

@@ -19,7 +19,7 @@ def figures(monkeypatch):
     monkeypatch.setattr(plotting, "_save", lambda fig, path: kept.append(fig))
     yield kept
     for fig in kept:
-        plotting.plt.close(fig)
+        fig.clear()
 
 
 def _history(n: int = 30, end: float = 23.0) -> dict:

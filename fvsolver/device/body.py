@@ -18,7 +18,6 @@ import math
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy.optimize import brentq
 
 from fvsolver.device.spec import GRAVITY
 from fvsolver.errors import CaseError
@@ -112,6 +111,8 @@ class PoolGeometry:
                 f"{where}: got {volume!r} m3, expected more than {liquid(tube_end_height):.4g} m3 (the dip tube's "
                 f"end must stand in the liquid) and less than {liquid(top):.4g} m3 (the body's volume below its "
                 "top); change the fill")
+        from scipy.optimize import brentq  # here: a head-only case never imports scipy.optimize
+
         height = brentq(lambda x: liquid(x) - volume, 0.0, top, xtol=1e-14)
         cap_v = spherical_cap_volume(rbi, height)
         moment = cap_v * (bottom + spherical_cap_centroid(rbi, height))

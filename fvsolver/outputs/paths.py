@@ -7,6 +7,7 @@ refused with the option's name and a fix; an existing output is replaced only wi
 """
 from __future__ import annotations
 
+import json
 import os
 from pathlib import Path
 
@@ -84,3 +85,30 @@ def clean_partial_files(folder: Path) -> list[Path]:
         except OSError:  # another process's file, or gone already: not ours to insist on
             pass
     return removed
+
+
+def _unfinished(folder: Path) -> bool:
+    """A run stopped before its end: no summary, or one that says interrupted."""
+    try:
+        return json.loads((folder / "summary.json").read_text()).get("status") == "interrupted"
+    except (OSError, ValueError, AttributeError):
+        return True
+
+
+def prepare_output(out: Path, overwrite: bool) -> Path:
+    """The output folder of a run or a study, made ready: refused if it holds anything (an
+    unfinished run is pointed to ``--resume``) unless ``overwrite``; partial files and an old
+    summary removed."""
+    out = Path(out)
+    if out.is_dir() and any(out.iterdir()) and not overwrite:
+        if (out / "checkpoint.json").exists() and _unfinished(out):
+            raise CaseError(f"--out {out}: holds the checkpoint of an unfinished run; continue it with "
+                            f"--resume {out}, or start again with --overwrite")
+        raise CaseError(f"--out {out}: the folder exists and is not empty (expected a new or empty folder); "
+                        "choose another folder or pass --overwrite")
+    output_folder(out)
+    clean_partial_files(out)
+    stale = out / "summary.json"
+    if stale.exists():  # never leave an old summary that claims a result for this run
+        stale.unlink()
+    return out

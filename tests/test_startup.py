@@ -1,0 +1,78 @@
+"""What each process loads: `--help` no numerical library, a bad case file's `check` no solver,
+a parallel sweep's parent no solver; the run's helper process draws the same PNG bytes as the
+run's own process, and a figure whose helper died is still drawn.  (Speed itself is measured in
+bench/bench_process.py, never here.)"""
+from __future__ import annotations
+
+import json
+import subprocess
+import sys
+from pathlib import Path
+
+import numpy as np
+
+from fvsolver.outputs.painter import Painter, draw_here
+
+ROOT = Path(__file__).resolve().parents[1]
+HEAVY = ("numpy", "scipy", "numba", "matplotlib", "meshio", "fvsolver.pipeline", "fvsolver.conduction")
+
+
+def _modules_after(code: str, tmp_path: Path) -> set[str]:
+    """The modules a fresh interpreter holds after ``code`` (run from the project's root)."""
+    out = tmp_path / "modules.json"
+    script = f"{code}\nimport json, sys\nopen({str(out)!r}, 'w').write(json.dumps(sorted(sys.modules)))\n"
+    done = subprocess.run([sys.executable, "-c", script], cwd=ROOT, capture_output=True, text=True, timeout=300)
+    assert done.returncode == 0, done.stderr[-2000:]
+    return set(json.loads(out.read_text()))
+
+
+def test_help_loads_no_numerical_library(tmp_path):
+    loaded = _modules_after("from fvsolver.cli import main\ntry:\n    main(['--help'])\nexcept SystemExit:\n    pass",
+                            tmp_path)
+    assert "fvsolver.cli" in loaded
+    assert not loaded & set(HEAVY), sorted(loaded & set(HEAVY))
+
+
+def test_check_of_a_bad_case_file_reports_before_loading_the_solver(tmp_path):
+    bad = tmp_path / "bad.toml"
+    bad.write_text((ROOT / "cases" / "demo.toml").read_text().replace("glass_thickness = 0.0012",
+                                                                      "glass_thickness = -0.0012"))
+    loaded = _modules_after(f"from fvsolver.cli import main\nassert main(['check', {str(bad)!r}, '-q']) == 2",
+                            tmp_path)
+    assert not loaded & {"scipy", "numba", "matplotlib", "fvsolver.pipeline", "fvsolver.conduction"}
+
+
+def test_a_parallel_sweeps_parent_never_loads_the_solver(tmp_path):
+    case = tmp_path / "case.toml"
+    case.write_text((ROOT / "cases" / "glass_bulb_cooling.toml").read_text().replace("end = 600.0", "end = 5.0")
+                    .replace("field_times = [10.0, 60.0, 300.0]", "field_times = []"))
+    code = (f"if __name__ == '__main__':\n"
+            f"    from fvsolver.case import load_case\n"
+            f"    from fvsolver.sweeps import Vary, sweep\n"
+            f"    rows = sweep(load_case({str(case)!r}), [Vary('initial.temperature', (290.0, 291.0, 292.0))], "
+            f"{str(tmp_path / 's')!r}, jobs=2)\n"
+            f"    assert [r['status'] for r in rows] == ['complete'] * 3, rows")
+    loaded = _modules_after(code, tmp_path)
+    assert not loaded & {"numba", "fvsolver.pipeline", "fvsolver.conduction", "fvsolver.stepper"}
+    assert (tmp_path / "s" / "sweep.json").is_file()
+
+
+def _history() -> dict:
+    t = np.linspace(0.0, 20.0, 12)
+    return {"time_s": t, "pressure_drop_pa": 30.0 * t, "mean_cap_temperature_k": 297.15 - 0.03 * t}
+
+
+def test_the_helper_draws_the_same_png_and_a_dead_helper_is_drawn_here(tmp_path):
+    args = (_history(), )
+    options = {"target_pressure_drop_pa": 500.0, "time_to_target_s": 16.7, "title": "helper"}
+    draw_here("history_plot", *args, tmp_path / "here.png", **options).wait()
+    with Painter() as painter:
+        painter.draw("history_plot", *args, tmp_path / "helper.png", **options).wait()
+        for process in list(painter.pool._processes.values()):  # the helper dies (killed, out of memory)
+            process.kill()
+            process.join(10)
+        painter.draw("history_plot", *args, tmp_path / "after.png", **options).wait()
+    here = (tmp_path / "here.png").read_bytes()
+    assert here[:8] == b"\x89PNG\r\n\x1a\n"
+    assert (tmp_path / "helper.png").read_bytes() == here
+    assert (tmp_path / "after.png").read_bytes() == here
