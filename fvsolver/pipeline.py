@@ -397,7 +397,7 @@ def _start_figures(folder: Path, case, setup, summary, history, fields, cycles=(
         figures.append(("history.png", draw(
             "history_plot", history, folder / "history.png", summary["target_pressure_drop_pa"],
             summary["time_to_target_s"], title=plain_title(case["title"]), subtitle=scenario,
-            max_pressure_drop_pa=summary.get("max_pressure_drop_pa"))))
+            max_pressure_drop_pa=summary.get("max_pressure_drop_pa"), device=summary.get("outcome") is not None)))
     if cycles:
         figures.append(("cycles.png", draw("cycle_plot", history, list(cycles), folder / "cycles.png",
                                            title=plain_title(case["title"]), subtitle=scenario)))

@@ -371,8 +371,11 @@ def history_plot(
     title: str = "",
     subtitle: str = "",
     max_pressure_drop_pa: float | None = None,
+    device: bool = False,
 ) -> None:
     """Plot a run's history in stacked panels on a shared time axis and write a PNG.
+
+    ``device``: a running device, whose "target" is the difference that tips it (labelled so).
 
     Panels, top to bottom (a panel whose columns are all missing is left out):
 
@@ -454,7 +457,8 @@ def history_plot(
                       label="pressure difference, second bulb - head")
     if target is not None:
         handles += [ax.axhline(target / pscale, color=_TARGET_COLOUR, lw=1.1, ls=(0, (5, 3)),
-                               label=f"target {target / pscale:.4g} {punit}")]
+                               label=(f"tips at {target / pscale:.4g} {punit}" if device
+                                      else f"target {target / pscale:.4g} {punit}"))]
     top = max(float(finite_dp.max()) if finite_dp.size else 0.0, target if target is not None else 0.0)
     bottom = min(float(finite_dp.min()) if finite_dp.size else 0.0, 0.0)
     if top > bottom:
@@ -470,7 +474,9 @@ def history_plot(
                 clip_on=False)
         right = t_hi > t_lo and (tt - t_lo) / (t_hi - t_lo) > 0.6
         ax.annotate(
-            f"target reached at {format_duration(time_to_target_s)}", xy=(tt, y / pscale),
+            (f"first tip at {time_to_target_s:.2f} s" if device and time_to_target_s < 60.0 else
+             f"first tip at {format_duration(time_to_target_s)}" if device else
+             f"target reached at {format_duration(time_to_target_s)}"), xy=(tt, y / pscale),
             xytext=(-14 if right else 14, -26), textcoords="offset points",
             ha="right" if right else "left", va="top", fontsize=8.5, color=_TARGET_COLOUR,
             arrowprops={"arrowstyle": "-", "color": _TARGET_COLOUR, "lw": 0.8},
@@ -478,7 +484,8 @@ def history_plot(
         )
     elif target is not None:
         ax.text(
-            0.015, 0.96, f"target not reached (largest {format_pressure(peak)})",
+            0.015, 0.96, (f"never tipped (largest {format_pressure(peak)})" if device
+                          else f"target not reached (largest {format_pressure(peak)})"),
             transform=ax.transAxes, ha="left", va="top", fontsize=8.5, color=_TARGET_COLOUR,
             bbox={"boxstyle": "round,pad=0.3", "fc": "white", "ec": _TARGET_COLOUR, "lw": 0.6},
         )

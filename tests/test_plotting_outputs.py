@@ -69,6 +69,18 @@ def test_a_stalled_run_quotes_the_summary_largest_difference(figures):
     assert any("largest -3.2 Pa" in t for t in texts), texts
 
 
+def test_a_running_device_history_names_its_tip_not_a_target(figures):
+    plotting.history_plot(_history(), "unused.png", 647.4, 21.42, device=True)
+    plotting.history_plot(_history(), "unused.png", 1000.0, None, max_pressure_drop_pa=690.0, device=True)
+    tipped, never = (fig.get_axes()[0] for fig in figures)
+    labels = [t.get_text() for t in tipped.get_legend().get_texts()] if tipped.get_legend() else []
+    labels += [t.get_text() for ax in figures[0].get_axes() if ax.get_legend() for t in ax.get_legend().get_texts()]
+    assert any(text.startswith("tips at 647.4") for text in labels), labels
+    assert any("first tip at 21.42 s" in t.get_text() for t in tipped.texts)
+    assert any("never tipped (largest 690 Pa)" in t.get_text() for t in never.texts)
+    assert not any("target" in t.get_text() for ax in (tipped, never) for t in ax.texts)
+
+
 def test_all_requested_fields_get_a_panel(figures):
     mesh = H.device_head(**HEAD, n_polar=12, n_neck=3)
     fields = [290.0 + k + mesh.cell_centres[:, 1] for k in range(6)]
