@@ -162,6 +162,15 @@ def test_absurd_sizes_are_refused_with_their_estimate(tmp_path, name):
     assert "numerics.max_" in err  # the key that raises the limit
 
 
+@pytest.mark.parametrize("key", ["body_polar_cells", "dip_tube_cells"])
+def test_a_whole_device_with_absurd_body_cells_is_refused_before_meshing(tmp_path, key):
+    """Found by the damaged-file fuzzing: the whole device's body cells were left out of the estimate."""
+    text = (ROOT / "cases" / "running_device.toml").read_text()
+    old = next(line for line in text.splitlines() if line.startswith(f"{key} = "))
+    err = refused(["check", case_file(tmp_path, text.replace(old, f"{key} = 9223372036854775807"))])
+    assert ": mesh: " in err and "cells, more than" in err and "Traceback" not in err, err
+
+
 def test_a_limit_is_raised_by_its_numerics_key(tmp_path):
     text = GLASS.replace("field_times = [10.0, 60.0, 300.0]", "field_count = 3000")
     assert "field files" in refused(["check", case_file(tmp_path, text)])

@@ -74,6 +74,9 @@ def estimate_cells(data) -> int:
     nr, nz = m["radial_cells"] * f, m["axial_cells"] * f
     if shape == "device_head":  # bulb wall and cap along the meridian, the neck tube's wall
         return (glass + cap) * polar + 2 * glass * m["neck_cells"] * f
+    if shape == "whole_device":  # the head as above, the tube, the body's wall and the dip tube's
+        return ((glass + cap) * polar + 2 * glass * m["neck_cells"] * f + glass * m["body_polar_cells"] * f
+                + 2 * glass * m["dip_tube_cells"] * f)
     if shape == "two_layer_shell":
         return (glass + cap) * polar
     if shape == "spherical_shell":
