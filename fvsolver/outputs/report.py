@@ -204,7 +204,8 @@ def result_paragraph(summary: Mapping) -> str:
     first_tip = _number(summary.get("first_tip_s"))
     end = _number(summary.get("end_time_s"))
     if device:
-        tips = f"{target_text.replace('the target of ', '')}, the difference that brings its centre of mass to the pivot"
+        tips = (f"{format_pressure(target)}, " if target is not None else "") + \
+            "the difference that brings its centre of mass to the pivot"
         if first_tip is not None:
             when = f"{first_tip:.2f} s" if first_tip < 60.0 else f"{format_duration(first_tip)} ({first_tip:.1f} s)"
             sentences.append(f"The device first tipped after {when} of simulated time, when "

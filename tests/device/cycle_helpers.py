@@ -3,8 +3,8 @@ from __future__ import annotations
 
 import copy
 
-from fvsolver.case.loader import Case, _freeze, validate_data
-from fvsolver.errors import CaseError
+from fvsolver.case.loader import Case
+from tests.device.helpers import case_from_data
 
 WHOLE = {
     "schema_version": 1,
@@ -40,7 +40,4 @@ def whole_case(**changes) -> Case:
                     data[key][k] = v
         else:
             data[key] = value
-    resolved, problems = validate_data(data)
-    if problems:
-        raise CaseError("\n".join(problems))
-    return Case(None, _freeze(resolved), "", "test")
+    return case_from_data(data)

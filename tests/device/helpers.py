@@ -36,6 +36,11 @@ def device_case(replace: tuple = (), **changes) -> Case:
             data[key].update(value)
         else:
             data[key] = value
+    return case_from_data(data)
+
+
+def case_from_data(data: dict) -> Case:
+    """A validated, frozen case from a plain dict (CaseError listing every problem)."""
     resolved, problems = validate_data(data)
     if problems:
         raise CaseError("\n".join(problems))
