@@ -30,13 +30,15 @@ which changes the solution only at round-off level and keeps the fill of the ord
 """
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 
 from fvsolver.errors import SolverError
+from fvsolver.kernels import COMPILED
+from fvsolver.kernels import sparse as ksp
 
 # MMD on A^T + A keeps the fill of these near-symmetric matrices about half of COLAMD's;
 # with SymmetricMode SuperLU prefers the diagonal pivots, which are dominant here.
@@ -51,11 +53,14 @@ class LowRankUpdate:
 
     base : (n, n) sparse
     left, right : (n, k) sparse, k small (one column per dense coupling)
+    system : (n + k, n + k) canonical CSC, optional: the bordered system already assembled (a
+        :class:`BorderedAssembly` hands it over, so that a factorisation need not build it again)
     """
 
     base: sp.csr_matrix
     left: sp.csr_matrix
     right: sp.csr_matrix
+    system: sp.csc_matrix | None = field(default=None, compare=False, repr=False)
 
     def __post_init__(self):
         n = self.base.shape[0]
@@ -79,6 +84,8 @@ class LowRankUpdate:
         return (self.base + self.left @ self.right.T).tocsr()
 
     def bordered(self) -> sp.csc_matrix:
+        if self.system is not None:
+            return self.system
         k = self.rank
         return sp.bmat([[self.base, self.left], [self.right.T, -sp.identity(k)]], format="csc")
 
@@ -158,7 +165,118 @@ def _triplets(a) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     return c.row, c.col, c.data
 
 
+class BorderedAssembly:
+    """Assembles :class:`LowRankUpdate` matrices of one fixed pattern from the values of their
+    bordered system's (row, column, value) triplets, the pattern's work done once.
+
+    The triplets are numbered in the bordered system ``[[A, U], [W^T, -I]]`` of size n + k: an
+    entry of U's column j sits at column n + j, an entry of W's column j at row n + j; the -I block
+    is added here. Duplicates are summed (in the order given) and every triplet's position stays in
+    the pattern, an exact zero as an explicit entry, so the pattern does not depend on the values.
+    Each call costs one ``bincount`` of the values and three gathers; the matrices it returns share
+    their index arrays, which are never to be written to.
+
+    n, k : sizes of A and of the update
+    rows, cols : (n_entries,) int, the triplets' positions in the bordered system
+    """
+
+    def __init__(self, n: int, k: int, rows: np.ndarray, cols: np.ndarray):
+        m = n + k
+        self.n, self.k, self.n_entries = n, k, len(rows)
+        rows = np.concatenate([np.asarray(rows, dtype=np.int64), np.arange(n, m)])
+        cols = np.concatenate([np.asarray(cols, dtype=np.int64), np.arange(n, m)])
+        if len(rows) and (rows.min() < 0 or rows.max() >= m or cols.min() < 0 or cols.max() >= m):
+            raise ValueError(f"BorderedAssembly: triplet positions outside the ({m}, {m}) bordered system")
+        unique, self._inverse = np.unique(cols * m + rows, return_inverse=True)
+        self._inverse = self._inverse.ravel()
+        col, row = np.divmod(unique, m)
+
+        def pattern(select, major, minor, n_major):
+            """indices and indptr (int32, SuperLU's own) of the entries ``select`` ordered by (major, minor)."""
+            where = select[np.lexsort((minor[select], major[select]))]
+            indptr = np.zeros(n_major + 1, dtype=np.intc)
+            np.cumsum(np.bincount(major[where], minlength=n_major), out=indptr[1:])
+            return where, minor[where].astype(np.intc), indptr
+
+        everything = np.arange(len(unique))
+        _, self._indices, self._indptr = pattern(everything, col, row, m)
+        upper, low = row < n, col < n
+        self._base = pattern(np.flatnonzero(upper & low), col, row, n)
+        self._left = pattern(np.flatnonzero(upper & ~low), col - n, row, k)
+        self._right = pattern(np.flatnonzero(~upper & low), row - n, col, k)  # W[c, r - n] = system[r, c]
+        self._shape = (m, m)
+        # the values, written by the caller in the order of the triplets; the -I block's are fixed
+        self.values = np.zeros(len(rows))
+        self.values[self.n_entries:] = -1.0
+
+    def __call__(self) -> LowRankUpdate:
+        """The matrix of the triplets' current ``values[:n_entries]``."""
+        data = np.bincount(self._inverse, weights=self.values, minlength=len(self._indices))
+        system = sp.csc_matrix((data, self._indices, self._indptr), shape=self._shape)
+        n, k = self.n, self.k
+        parts = [sp.csc_matrix((data[where], indices, indptr), shape=shape)
+                 for (where, indices, indptr), shape in ((self._base, (n, n)), (self._left, (n, k)),
+                                                         (self._right, (n, k)))]
+        return LowRankUpdate(*parts, system=system)
+
+
+class KeptTriplets:
+    """A :class:`LowRankUpdate` given as triplets of its bordered system in the same order at every
+    call (a Newton Jacobian's couplings): the first call records the rows and columns and builds a
+    :class:`BorderedAssembly`; later calls only write the values, in order, into its buffer.
+
+    Use: ``begin()``, then ``add(rows, cols, values)`` for each block (broadcast like NumPy; a
+    block's rows and columns must be the same at every call), then ``matrix()``. A call that adds
+    a different number of blocks, or blocks of other lengths, raises ValueError; ``forget()`` makes
+    the next call record afresh.
+
+    n, k : sizes of A and of the update (U's column j is column n + j, W's column j row n + j)
+    """
+
+    def __init__(self, n: int, k: int):
+        self.n, self.k = n, k
+        self.assembly: BorderedAssembly | None = None
+        self._lengths: list[int] = []
+
+    def forget(self) -> None:
+        self.assembly = None
+
+    def begin(self) -> None:
+        self._block, self._pos = 0, 0
+        if self.assembly is None:
+            self._rows, self._cols, self._values, self._lengths = [], [], [], []
+
+    def add(self, rows, cols, values) -> None:
+        if self.assembly is None:
+            r, c, v = np.broadcast_arrays(np.atleast_1d(rows), np.atleast_1d(cols), np.atleast_1d(values))
+            self._rows.append(r.ravel())
+            self._cols.append(c.ravel())
+            self._values.append(v.ravel())
+            self._lengths.append(r.size)
+            return
+        if self._block >= len(self._lengths):
+            raise ValueError(f"KeptTriplets: more blocks than the {len(self._lengths)} recorded; call forget() "
+                             "when the pattern changes")
+        end = self._pos + self._lengths[self._block]
+        self.assembly.values[self._pos:end] = values
+        self._pos, self._block = end, self._block + 1
+
+    def matrix(self) -> LowRankUpdate:
+        if self.assembly is None:
+            rows, cols = np.concatenate(self._rows), np.concatenate(self._cols)
+            assembly = BorderedAssembly(self.n, self.k, rows, cols)
+            assembly.values[: len(rows)] = np.concatenate(self._values)
+            self.assembly = assembly
+            del self._rows, self._cols, self._values
+        elif self._block != len(self._lengths):
+            raise ValueError(f"KeptTriplets: {self._block} blocks given, {len(self._lengths)} recorded; call "
+                             "forget() when the pattern changes")
+        return self.assembly()
+
+
 def _system(matrix: sp.spmatrix | LowRankUpdate, assemble: Assembler | None = None) -> sp.csc_matrix:
+    if isinstance(matrix, LowRankUpdate) and matrix.system is not None:
+        return matrix.system  # canonical already (a BorderedAssembly's)
     if isinstance(matrix, LowRankUpdate) and assemble is not None:
         # the bordered system [[A, U], [W^T, -I]] from its pieces' triplets, by a kept assembly
         n, k = matrix.shape[0], matrix.rank
@@ -243,7 +361,8 @@ class Factoriser:
         self._pattern: sp.csc_matrix | None = None  # the union pattern (values unused)
         self._keys: np.ndarray | None = None
         self._order: np.ndarray | None = None
-        self._permuted = None  # (where each entry of the pattern goes, indices, indptr) under the order
+        self._permuted = None  # (where each entry of the pattern goes, its row, indices, indptr) under the order
+        self._seen = (None, None)  # index arrays last found equal to the pattern's
         self._assemble = Assembler()
         self.orderings = 0  # fresh orderings computed (a counter for tests and benchmarks)
 
@@ -260,12 +379,19 @@ class Factoriser:
         self._keys = _keys(self._pattern)
         self._order = np.asarray(order)
         self._permuted = None
+        self._seen = (None, None)
 
     def _same_pattern(self, a: sp.csc_matrix) -> bool:
         p = self._pattern
-        return (p is not None and a.shape == p.shape and a.indptr.shape == p.indptr.shape
-                and a.indices.shape == p.indices.shape
+        if p is None or a.shape != p.shape:
+            return False
+        if a.indices is self._seen[0] and a.indptr is self._seen[1]:
+            return True  # the index arrays already found equal (a BorderedAssembly's, kept for the run)
+        same = (a.indptr.shape == p.indptr.shape and a.indices.shape == p.indices.shape
                 and np.array_equal(a.indptr, p.indptr) and np.array_equal(a.indices, p.indices))
+        if same:
+            self._seen = (a.indices, a.indptr)  # held, so their identity cannot pass to other arrays
+        return same
 
     def _on_pattern(self, a: sp.csc_matrix) -> sp.csc_matrix:
         """``a`` on the remembered pattern, widened to the union if it has entries outside it."""
@@ -276,43 +402,64 @@ class Factoriser:
         if not inside.all():
             self._keys = np.union1d(self._keys, keys)
             self._pattern, self._order, self._permuted = _from_keys(self._keys, a.shape), None, None
+            self._seen = (None, None)
             pos = np.searchsorted(self._keys, keys)
         data = np.zeros(len(self._keys))
         data[pos] = a.data
         return sp.csc_matrix((data, self._pattern.indices, self._pattern.indptr), shape=a.shape)
 
-    def _pre_ordered(self, a: sp.csc_matrix) -> sp.csc_matrix:
-        """``a[q][:, q]`` for the kept order q, by a gather of a's values (the pattern's permutation
-        is worked out once)."""
+    def _pre_ordered(self, a: sp.csc_matrix, rho: np.ndarray | None) -> sp.csc_matrix:
+        """``(R a)[q][:, q]`` for the kept order q and the row factors rho, by a gather of a's values
+        (the pattern's permutation is worked out once)."""
         if self._permuted is None:
             q = self._order
             tag = sp.csc_matrix((np.arange(1.0, a.nnz + 1.0), a.indices, a.indptr), shape=a.shape)
             b = tag[q][:, q].tocsc()
             b.sort_indices()
-            self._permuted = (b.data.astype(np.int64) - 1, b.indices, b.indptr)
-        where, indices, indptr = self._permuted
-        return sp.csc_matrix((a.data[where], indices, indptr), shape=a.shape)
+            where = b.data.astype(np.int64) - 1
+            self._permuted = (where, np.asarray(a.indices)[where], b.indices.astype(np.intc), b.indptr.astype(np.intc))
+        where, rows, indices, indptr = self._permuted
+        if not COMPILED:
+            data = a.data[where] if rho is None else a.data[where] * rho[rows]
+        else:
+            data = np.empty(len(where))
+            if rho is None:
+                ksp.gather(a.data, where, data)
+            else:
+                ksp.scaled_gather(a.data, where, rows, rho, data)
+        return sp.csc_matrix((data, indices, indptr), shape=a.shape)
 
     def __call__(self, matrix: sp.spmatrix | LowRankUpdate) -> Factor:
         a = _system(matrix, self._assemble)
         n = matrix.shape[0]
-        if self._pattern is not None and a.shape == self._pattern.shape and not self._same_pattern(a):
+        same = self._same_pattern(a)
+        if self._pattern is not None and a.shape == self._pattern.shape and not same:
             a = self._on_pattern(a)
-        rho = row_scale(a)
-        if rho is not None:  # the same pattern, rows scaled in place (explicit zeros kept)
+            same = True
+        rho = _row_scale(a)
+        if self._order is not None and same:
+            return Factor(_splu(self._pre_ordered(a, rho), _PRE_ORDERED), n, self._order, rho)
+        if rho is not None:  # the same pattern, rows scaled (explicit zeros kept)
             a = sp.csc_matrix((a.data * rho[a.indices], a.indices, a.indptr), shape=a.shape)
-        if self._order is not None and self._same_pattern(a):
-            return Factor(_splu(self._pre_ordered(a), _PRE_ORDERED), n, self._order, rho)
         lu = _splu(a, SPLU_OPTIONS)
         self.orderings += 1
         self._permuted = None
-        if not self._same_pattern(a):
+        if not same:
             self._pattern = sp.csc_matrix((np.zeros(a.nnz), a.indices.copy(), a.indptr.copy()), shape=a.shape)
             self._keys = _keys(a)
+            self._seen = (None, None)
         # SuperLU factorises Pr A Pc; symmetric pre-ordering with the inverse of perm_c
         # reproduces its column order (and so its fill)
         self._order = np.argsort(lu.perm_c)
         return Factor(lu, n, None, rho)
+
+
+def _row_scale(a: sp.csc_matrix) -> np.ndarray | None:
+    """:func:`row_scale` by its compiled twin where numba compiles."""
+    if not COMPILED:
+        return row_scale(a)
+    rho = np.empty(a.shape[0])
+    return rho if ksp.row_scale(a.indptr, a.indices, a.data, rho) else None
 
 
 def solve(lu: Factor, rhs: np.ndarray) -> np.ndarray:

@@ -28,7 +28,6 @@ from __future__ import annotations
 from dataclasses import dataclass, field, replace
 
 import numpy as np
-import scipy.sparse as sp
 
 from fvsolver.boundary import PatchCondition
 from fvsolver.conduction import ConductionProblem, Evaluation
@@ -37,7 +36,7 @@ from fvsolver.device.spec import GRAVITY, DeviceSpec
 from fvsolver.materials import REFERENCE_TEMPERATURE
 from fvsolver.device.surfaces import CondensingWall, EvaporativeCap, RoomSurface, water_latent_heat
 from fvsolver.kernels import surfaces as ks
-from fvsolver.linear import Assembler, LowRankUpdate
+from fvsolver.linear import KeptTriplets, LowRankUpdate
 from fvsolver.properties import convection, moist_air, porous
 from fvsolver.properties.fluids import UNIVERSAL_GAS_CONSTANT
 
@@ -45,14 +44,6 @@ CAP_PATCHES = ("cap_outer", "cap_edge")
 ROOM_PATCHES = ("glass_outer", "neck_outer")
 BODY_ROOM_PATCHES = ("body_outer",)
 POOL_PATCHES = ("body_inner", "dip_tube_outer", "tube_end")
-
-
-def _columns(n: int, columns) -> sp.csc_matrix:
-    """An (n, k) CSC matrix of the dense vectors' entries on their fixed supports (zeros kept)."""
-    indices = np.concatenate([support for _, support in columns])
-    data = np.concatenate([vector[support] for vector, support in columns])
-    indptr = np.concatenate([[0], np.cumsum([len(support) for _, support in columns])])
-    return sp.csc_matrix((data, indices, indptr), shape=(n, len(columns)))
 
 
 @dataclass
@@ -174,18 +165,16 @@ class DeviceProblem:
         self.outer_diameter = spec.room.diameter
         self.vapour_reference = spec.vapour.vapour_mass(spec.vapour.initial_temperature)
         self.tolerance_scale = self._tolerance_scale()
-        # the Jacobian's kept assembly, and where its low-rank columns can be nonzero
-        self._assemble = Assembler()
-        self._conduction_rows = None
-        wall_cells = np.unique(mesh.boundary_cell[self.inner])
-        self._u_support = np.unique(np.concatenate([wall_cells, self.i_c, [self.i_mv]])).astype(np.int64)
-        self._w_support = wall_cells.astype(np.int64)
-        self._outer_cells = np.unique(mesh.boundary_cell[self.outer_faces]).astype(np.int64)
-        self._outer_support = np.unique(np.concatenate([self._outer_cells, self.cap_cells, [self.i_w]])).astype(np.int64)
-        self._cap_support = np.asarray(self.cap_cells, dtype=np.int64)
-        self._cap_face_cells = np.unique(mesh.boundary_cell[self.cap_faces]).astype(np.int64)
-        if body is not None:  # the joined vapour spaces' flow reaches the pool's rows
-            self._u_support = np.unique(np.concatenate([self._u_support, [self.i_tb, self.i_mp]])).astype(np.int64)
+        # the Jacobian's kept assembly (three low-rank columns) and its constant pieces
+        self._triplets = KeptTriplets(self.n, 3)
+        self._conduction_pattern = (None, None)
+        self._cells = np.arange(n)
+        self._wall_weight = self.inner_area / max(float(self.inner_area.sum()), 1e-300)
+        area_o = mesh.boundary_areas[self.outer_faces]
+        self._outer_weight = area_o / area_o.sum() if area_o.size else area_o
+        self._lumped_rows = np.array([self.i_mv, self.i_w, self.i_tb] + ([self.i_mp] if body is not None else []))
+        if body is not None:
+            self._pool_rows = np.array([self.i_mv, self.i_mp, self.i_tb])
 
     # -- state ----------------------------------------------------------------------------------
     def initial_state(self, temperature: float) -> np.ndarray:
@@ -479,17 +468,26 @@ class DeviceProblem:
 
     def jacobian(self, alpha0: float, dt: float, dm: np.ndarray, ev: DeviceEvaluation) -> LowRankUpdate:
         """J = alpha0 dm/dy - dt dF/dy; the weak dependences (transfer coefficients and the cap's
-        conductivity on the state, the deferred non-orthogonal correction) are left out."""
+        conductivity on the state, the deferred non-orthogonal correction) are left out.
+
+        The dense couplings are kept as the update U W^T (three columns: the vapour temperature, the
+        total evaporation, the outside coefficients), given as entries of the bordered system
+        ``[[A, U], [W^T, -I]]`` (U's column j at column n + j, W's at row n + j). Every entry is
+        given at every call, exact zeros included (a standing device's joined-vapour terms, fixed
+        outside coefficients), so the pattern is the run's and is assembled once."""
         n, mesh, x = self.n_cells, self.mesh, ev.extras
         c = ev.conduction
         jtt = self.conduction.jacobian(alpha0, dt, dm[:n], c)
-        rows, cols, vals = [], [], []
-
-        def add(r, cl, v):
-            r, cl, v = np.broadcast_arrays(np.atleast_1d(r), np.atleast_1d(cl), np.atleast_1d(v))
-            rows.append(r.ravel()), cols.append(cl.ravel()), vals.append(v.ravel())
-
-        add(np.arange(n), np.arange(n), -dt * x["dsensible"])
+        kept = self._triplets
+        block = self._conduction_pattern
+        if kept.assembly is not None and not (jtt.indices is block[0] or np.array_equal(jtt.indices, block[0])):
+            kept.forget()  # the conduction block's pattern changed (never within a run today)
+        if kept.assembly is None:
+            self._conduction_pattern = (jtt.indices, np.repeat(np.arange(n), np.diff(jtt.indptr)))
+        kept.begin()
+        add = kept.add
+        add(self._conduction_pattern[1], jtt.indices, jtt.data)
+        add(self._cells, self._cells, -dt * x["dsensible"])
         # condensing inner faces
         b = self.inner
         P = mesh.boundary_cell[b]
@@ -513,34 +511,30 @@ class DeviceProblem:
         add(self.i_c, self.i_mv, -dt * area * dJ_dm)
         add(self.i_c, self.i_c, alpha0 * area - dt * area * dJ_dc)
         # the vapour temperature (the wall cells' mean) sets p_v = m_v R T_v / V: a rank-one coupling
-        # of every wall face to every wall cell
+        # of every wall face to every wall cell, u w^T with w the wall cells' area weights, which
+        # fvsolver.linear factorises through the bordered system instead of forming the dense block
         p_v, t_v = ev.context["vapour"]["pressure"], ev.context["vapour"]["temperature"]
         per_tv = p_v / t_v  # dp_v / dT_v at fixed m_v (the flux sees T_v through p_v only)
         dts_dtv = lat * x["dj_dp"] * per_tv / (kap - g1)
         dJ_dtv = x["dj_dp"] * per_tv + x["dj_dt"] * dts_dtv
-        # it is kept as the update u w^T (w: the wall cells' area weights), which fvsolver.linear
-        # factorises through the bordered system instead of forming the dense block
-        weight = area / max(area.sum(), 1e-300)
-        u = np.zeros(self.n)
-        np.add.at(u, P, -dt * area * kap * dts_dtv)
-        u[self.i_c] = -dt * area * dJ_dtv
-        u[self.i_mv] = dt * float(np.sum(area * dJ_dtv))
-        if self.body is not None and self.tipped:
-            # the joined vapour spaces' flow G = k (p_sat(T_p) - p_v) sees T_v through p_v too
-            dg_dtv = -self.joint_conductance * per_tv
-            u[self.i_mv] -= dt * dg_dtv
-            u[self.i_mp] += dt * dg_dtv
-            u[self.i_tb] += dt * dg_dtv * x["leaving_enthalpy"]
-        w = np.zeros(self.n)
-        np.add.at(w, P, weight)
+        u = self.n + 0  # the bordered system's column (and row) of the first coupling
+        add(P, u, -dt * area * kap * dts_dtv)
+        add(self.i_c, u, -dt * area * dJ_dtv)
+        add(self.i_mv, u, dt * float(np.sum(area * dJ_dtv)))
+        if self.body is not None:
+            # the joined vapour spaces' flow G = k (p_sat(T_p) - p_v) sees T_v through p_v too (zero
+            # while the device stands)
+            dg_dtv = -self.joint_conductance * per_tv if self.tipped else 0.0
+            add(self._pool_rows, u, (-dt * dg_dtv, dt * dg_dtv, dt * dg_dtv * x["leaving_enthalpy"]))
+        add(u, P, self._wall_weight)
         lumped = np.zeros(self.n - n)
         lumped[0] = alpha0 + dt * float(np.sum(area * dJ_dm))
-        # the outside coefficients h and h_m follow the outer surface's mean temperature: a second
-        # rank-one coupling, of every outer face to every outer cell
-        u2, w2 = self._transfer_coupling(dt, ev)
         # the water's sensible enthalpy in every cap cell follows the total evaporation, which
-        # follows the temperatures of the cells under the cap's faces: a third
-        u3, w3 = self._evaporation_coupling(dt, ev)
+        # follows the temperatures of the cells under the cap's faces: a second
+        self._evaporation_coupling(dt, ev, add)
+        # the outside coefficients h and h_m follow the outer surface's mean temperature: a third,
+        # of every outer face to every outer cell
+        self._transfer_coupling(dt, ev, add)
         # the cap's water
         if self.spec.cap_water.mode == "charge":
             bc = self.cap_faces
@@ -572,55 +566,43 @@ class DeviceProblem:
             lumped[self.i_w - n] = alpha0
         bulb = self.spec.second_bulb
         lumped[self.i_tb - n] = alpha0 * bulb.heat_capacity + (dt * bulb.loss_conductance if bulb.mode == "lumped" else 0.0)
-        diag_rows = np.array([self.i_mv, self.i_w, self.i_tb])
         if self.body is not None:
             self._pool_jacobian(alpha0, dt, dm, ev, lumped, add)
-            diag_rows = np.array([self.i_mv, self.i_w, self.i_tb, self.i_mp])
         # the lumped rows' diagonals that add() did not give (m_v, W, T_b, m_p), and the c diagonal above
-        add(diag_rows, diag_rows, lumped[diag_rows - n])
-        # the conduction block's entries and the couplings', summed by a kept assembly (the structure is
-        # the same from one call to the next)
-        if self._conduction_rows is None or len(self._conduction_rows) != len(jtt.indices):
-            self._conduction_rows = np.repeat(np.arange(n), np.diff(jtt.indptr))
-        r = np.concatenate([self._conduction_rows] + rows)
-        cl = np.concatenate([jtt.indices] + cols)
-        v = np.concatenate([jtt.data] + vals)
-        base = self._assemble(r, cl, v, (self.n, self.n))
-        columns = [(u, self._u_support), (w, self._w_support), (u3, self._cap_support), (w3, self._cap_face_cells)]
-        if u2 is not None:
-            columns += [(u2, self._outer_support), (w2, self._outer_cells)]
-        left = _columns(self.n, columns[0::2])
-        right = _columns(self.n, columns[1::2])
-        return LowRankUpdate(base, left, right)
+        add(self._lumped_rows, self._lumped_rows, lumped[self._lumped_rows - n])
+        return kept.matrix()
 
-    def _evaporation_coupling(self, dt: float, ev: DeviceEvaluation):
-        """(u, w): the Jacobian's update u w^T of the water's sensible enthalpy in the cap cells through
-        the total evaporation E = sum A m_e(T_s), T_s eliminated per face."""
+    def _evaporation_coupling(self, dt: float, ev: DeviceEvaluation, add) -> None:
+        """The Jacobian's update column (n + 1) of the water's sensible enthalpy in the cap cells
+        through the total evaporation E = sum A m_e(T_s), T_s eliminated per face."""
         c, mesh = ev.conduction, self.mesh
-        u = np.zeros(self.n)
-        w = np.zeros(self.n)
         faces = self.cap_faces
+        col = self.n + 1
         if faces.size:
             kap, g1 = c.surface_conductance[faces], c.surface_derivative[faces]
-            np.add.at(w, mesh.boundary_cell[faces], mesh.boundary_areas[faces] * ev.extras["dme_dt"] * kap / (kap - g1))
-            u[self.cap_cells] = -dt * ev.extras["sensible_per_evaporation"][self.cap_cells]
-        return u, w
+            add(col, mesh.boundary_cell[faces], mesh.boundary_areas[faces] * ev.extras["dme_dt"] * kap / (kap - g1))
+            add(self.cap_cells, col, -dt * ev.extras["sensible_per_evaporation"][self.cap_cells])
+        else:
+            add(self.cap_cells, col, 0.0)
 
-    def _transfer_coupling(self, dt: float, ev: DeviceEvaluation):
-        """(u, w): the Jacobian's update u w^T from h(t_surf) and h_m(t_surf), t_surf = w . T the outer
-        cells' area-weighted mean; None where the coefficients are fixed."""
+    def _transfer_coupling(self, dt: float, ev: DeviceEvaluation, add) -> None:
+        """The Jacobian's update column (n + 2) from h(t_surf) and h_m(t_surf), t_surf = w . T the
+        outer cells' area-weighted mean; exact zeros where the coefficients are fixed."""
         ctx, c = ev.context, ev.conduction
         dh, dhm = self._transfer_derivatives(ctx["cap"]["surface_mean"], ctx["cap"]["h"], ctx["cap"]["h_m"])
-        if dh == 0.0 and dhm == 0.0:
-            return None, None
+        fixed = dh == 0.0 and dhm == 0.0
         mesh, room = self.mesh, self.spec.room
-        u = np.zeros(self.n)
-        w = np.zeros(self.n)
-        outer = self.outer_faces
-        area_o = mesh.boundary_areas[outer]
-        np.add.at(w, mesh.boundary_cell[outer], area_o / area_o.sum())
+        col = self.n + 2
+        add(col, mesh.boundary_cell[self.outer_faces], self._outer_weight)
         for faces, cap in ((self.cap_faces, True), (self.head_room_faces, False)):
             if faces.size == 0:
+                continue
+            if fixed:
+                add(mesh.boundary_cell[faces], col, 0.0)
+                if cap:
+                    add(self.cap_cells, col, 0.0)
+                    if self.spec.cap_water.mode == "charge":
+                        add(self.i_w, col, 0.0)
                 continue
             kap, g1 = c.surface_conductance[faces], c.surface_derivative[faces]
             t_s = c.surface_temperature[faces]
@@ -632,19 +614,19 @@ class DeviceProblem:
                        else water_latent_heat(t_s))
                 dq = dq - lat * m_e * dhm / h_m
             area = mesh.boundary_areas[faces]
-            np.add.at(u, mesh.boundary_cell[faces], -dt * area * kap * dq / (kap - g1))
+            add(mesh.boundary_cell[faces], col, -dt * area * kap * dq / (kap - g1))
             if cap:
                 dts = dq / (kap - g1)
                 devap = float(np.sum(area * (ev.evaporation * dhm / ctx["cap"]["h_m"] + ev.extras["dme_dt"] * dts)))
                 cells = self.cap_cells
-                u[cells] -= dt * ev.extras["sensible_per_evaporation"][cells] * devap
+                add(cells, col, -dt * ev.extras["sensible_per_evaporation"][cells] * devap)
                 if self.spec.cap_water.mode == "charge":
-                    u[self.i_w] = dt * devap
-        return u, w
+                    add(self.i_w, col, dt * devap)
 
     def _pool_jacobian(self, alpha0, dt, dm, ev, lumped, add) -> None:
         """The pool's entries: its contact with the glass (surface temperatures eliminated per face),
-        its energy's dependence on its mass, and the joined vapour spaces' flow."""
+        its energy's dependence on its mass, and the joined vapour spaces' flow (exact zeros while
+        the device stands, so that the pattern stays the run's)."""
         n, mesh, x, c = self.n_cells, self.mesh, ev.extras, ev.conduction
         b = self.pool_faces
         P = mesh.boundary_cell[b]
@@ -662,8 +644,7 @@ class DeviceProblem:
         add(self.i_tb, self.i_mp, alpha0 * cl * (t_p - REFERENCE_TEMPERATURE))
         add(self.i_tb, self.i_mv, dt * dg_dm * e)
         lumped[self.i_mp - n] = alpha0
-        if g != 0.0 or dg_dm != 0.0:
-            add(self.i_mv, self.i_mv, -dt * dg_dm)
-            add(self.i_mv, self.i_tb, -dt * dg_dt)
-            add(self.i_mp, self.i_mv, dt * dg_dm)
-            add(self.i_mp, self.i_tb, dt * dg_dt)
+        add(self.i_mv, self.i_mv, -dt * dg_dm)
+        add(self.i_mv, self.i_tb, -dt * dg_dt)
+        add(self.i_mp, self.i_mv, dt * dg_dm)
+        add(self.i_mp, self.i_tb, dt * dg_dt)
