@@ -22,6 +22,7 @@ from fvsolver.discretisation import Stencil, build_stencil
 from fvsolver.errors import CaseError
 from fvsolver.kernels import conduction as kern
 from fvsolver.kernels import surfaces as _ks
+from fvsolver.linear import with_data
 from fvsolver.materials import REFERENCE_TEMPERATURE, Material
 from fvsolver.mesh.core import Mesh
 from fvsolver.surface_balance import SURFACE_ITERATIONS, solve_surface as _solve_surface, term_sum as _term_sum
@@ -369,7 +370,7 @@ class ConductionProblem:
         diag = alpha0 * dm - dt * ev.boundary_jacobian
         kern.fill_jacobian(data, st.diag_pos, st.owner_pos, st.neighbour_pos, self.mesh.owner,
                            self.mesh.neighbour, diag, ev.conductance, dt)
-        J = sp.csr_matrix((data, st.pattern.indices, st.pattern.indptr), shape=st.pattern.shape)
+        J = with_data(st.pattern, data)  # the stencil's structure, checked when it was built
         implicit = self._implicit_correction
         if implicit is not None:
             J = (J - dt * implicit[0]).tocsr()

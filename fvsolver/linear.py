@@ -115,6 +115,14 @@ class Factor:
 
     def solve(self, rhs: np.ndarray) -> np.ndarray:
         m = self._m
+        if COMPILED and self.order is not None:
+            # pad, scale and permute in one pass, and back
+            rho = self.row_scale if self.row_scale is not None else self._ones()
+            b = np.empty(m)
+            ksp.permuted_rhs(rhs, rho, self.order, b)
+            x = np.empty(self.n)
+            ksp.unpermuted(self.lu.solve(b), self.order, x)
+            return x
         b = rhs if m == self.n else np.concatenate([rhs, np.zeros(m - self.n)])
         if self.row_scale is not None:
             b = b * self.row_scale
@@ -123,6 +131,23 @@ class Factor:
         x = np.empty(m)
         x[self.order] = self.lu.solve(b[self.order])
         return x[: self.n]
+
+    def _ones(self) -> np.ndarray:
+        if getattr(self, "_unit", None) is None:
+            self._unit = np.ones(self._m)
+        return self._unit
+
+
+def with_data(template: sp.spmatrix, data: np.ndarray) -> sp.spmatrix:
+    """A compressed sparse matrix of ``template``'s structure (shared, never to be written) holding
+    ``data``: the constructor's checks are skipped, since the structure was checked when the
+    template was built (a few microseconds instead of some twenty)."""
+    if not hasattr(template, "__dict__") or not hasattr(template, "indptr"):  # pragma: no cover
+        return template.__class__((data, template.indices, template.indptr), shape=template.shape)
+    out = template.__class__.__new__(template.__class__)
+    out.__dict__.update(template.__dict__)
+    out.data = data
+    return out
 
 
 def _splu(matrix: sp.csc_matrix, options: dict) -> spla.SuperLU:
@@ -205,6 +230,14 @@ class BorderedAssembly:
         self._left = pattern(np.flatnonzero(upper & ~low), col - n, row, k)
         self._right = pattern(np.flatnonzero(~upper & low), row - n, col, k)  # W[c, r - n] = system[r, c]
         self._shape = (m, m)
+        self._templates = [sp.csc_matrix((np.zeros(len(where)), indices, indptr), shape=shape)
+                           for (where, indices, indptr), shape in ((self._base, (n, n)), (self._left, (n, k)),
+                                                                   (self._right, (n, k)))]
+        self._system_template = sp.csc_matrix((np.zeros(len(self._indices)), self._indices, self._indptr),
+                                              shape=self._shape)
+        self._system_template.has_canonical_format = True
+        for t in self._templates:
+            t.has_canonical_format = True
         # the values, written by the caller in the order of the triplets; the -I block's are fixed
         self.values = np.zeros(len(rows))
         self.values[self.n_entries:] = -1.0
@@ -212,11 +245,8 @@ class BorderedAssembly:
     def __call__(self) -> LowRankUpdate:
         """The matrix of the triplets' current ``values[:n_entries]``."""
         data = np.bincount(self._inverse, weights=self.values, minlength=len(self._indices))
-        system = sp.csc_matrix((data, self._indices, self._indptr), shape=self._shape)
-        n, k = self.n, self.k
-        parts = [sp.csc_matrix((data[where], indices, indptr), shape=shape)
-                 for (where, indices, indptr), shape in ((self._base, (n, n)), (self._left, (n, k)),
-                                                         (self._right, (n, k)))]
+        system = with_data(self._system_template, data)
+        parts = [with_data(t, data[where]) for t, (where, _, _) in zip(self._templates, (self._base, self._left, self._right))]
         return LowRankUpdate(*parts, system=system)
 
 
@@ -417,8 +447,11 @@ class Factoriser:
             b = tag[q][:, q].tocsc()
             b.sort_indices()
             where = b.data.astype(np.int64) - 1
-            self._permuted = (where, np.asarray(a.indices)[where], b.indices.astype(np.intc), b.indptr.astype(np.intc))
-        where, rows, indices, indptr = self._permuted
+            indices, indptr = b.indices.astype(np.intc), b.indptr.astype(np.intc)
+            template = sp.csc_matrix((np.zeros(len(where)), indices, indptr), shape=a.shape)
+            template.has_canonical_format = True
+            self._permuted = (where, np.asarray(a.indices)[where], indices, indptr, template)
+        where, rows = self._permuted[:2]
         if not COMPILED:
             data = a.data[where] if rho is None else a.data[where] * rho[rows]
         else:
@@ -427,7 +460,7 @@ class Factoriser:
                 ksp.gather(a.data, where, data)
             else:
                 ksp.scaled_gather(a.data, where, rows, rho, data)
-        return sp.csc_matrix((data, indices, indptr), shape=a.shape)
+        return with_data(self._permuted[4], data)
 
     def __call__(self, matrix: sp.spmatrix | LowRankUpdate) -> Factor:
         a = _system(matrix, self._assemble)

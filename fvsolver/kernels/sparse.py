@@ -72,3 +72,23 @@ def gather(data, where, out):
     """out[k] = data[where[k]]."""
     for k in range(where.shape[0]):
         out[k] = data[where[k]]
+
+
+@jit
+def permuted_rhs(rhs, rho, order, out):
+    """out[i] = b[order[i]] * rho[order[i]], b the right-hand side padded with zeros to out's length
+    (the bordered rows): the right-hand side of a row-scaled, symmetrically pre-ordered system."""
+    n = rhs.shape[0]
+    for i in range(order.shape[0]):
+        j = order[i]
+        out[i] = (rhs[j] if j < n else 0.0) * rho[j]
+
+
+@jit
+def unpermuted(solution, order, out):
+    """out[order[i]] = solution[i] for the order's entries inside out (the bordered unknowns dropped)."""
+    n = out.shape[0]
+    for i in range(order.shape[0]):
+        j = order[i]
+        if j < n:
+            out[j] = solution[i]
