@@ -128,3 +128,101 @@ def test_a_restored_factoriser_keeps_the_pattern_and_ordering(rng):
     lu = again(A)
     assert again.orderings == 0 and lu.order is not None  # the kept ordering, not a fresh one
     assert np.allclose(A @ solve(lu, b), b, atol=1e-10)
+
+
+# -- the kept assembly of a bordered low-rank update ----------------------------------------------
+def bordered_triplets(rng, n: int = 60, k: int = 2):
+    """A Laplacian's entries, duplicated couplings and exact zeros, and k dense columns, as triplets of
+    the bordered system (U's column j at column n + j, W's column j at row n + j)."""
+    A = laplacian(int(np.sqrt(n)), shift=1.0).tocoo()
+    n = A.shape[0]
+    rows, cols, vals = [A.row], [A.col], [A.data]
+    extra = rng.integers(0, n, (2, 40))  # couplings summed onto (possibly) the same entries
+    rows.append(extra[0]), cols.append(extra[1]), vals.append(rng.normal(size=40))
+    rows.append(np.array([3])), cols.append(np.array([n - 1])), vals.append(np.zeros(1))  # an exact zero
+    for j in range(k):
+        support = rng.choice(n, 12, replace=False)
+        rows.append(support), cols.append(np.full(12, n + j)), vals.append(rng.normal(size=12))
+        support = rng.choice(n, 8, replace=False)
+        rows.append(np.full(8, n + j)), cols.append(support), vals.append(rng.random(8))
+    return n, k, np.concatenate(rows), np.concatenate(cols), np.concatenate(vals)
+
+
+def test_bordered_assembly_sums_triplets_into_the_update_and_its_bordered_system(rng):
+    from fvsolver.linear import BorderedAssembly
+    n, k, rows, cols, vals = bordered_triplets(rng)
+    assembly = BorderedAssembly(n, k, rows, cols)
+    for _ in range(2):  # new values in the kept pattern
+        vals = vals * (1.0 + rng.random(len(vals)))
+        assembly.values[: len(vals)] = vals
+        J = assembly()
+        # the reference: scipy's COO sum of the same triplets, and scipy's own bordered bmat
+        full = sp.coo_matrix((np.append(vals, -np.ones(k)), (np.append(rows, np.arange(n, n + k)),
+                                                             np.append(cols, np.arange(n, n + k)))),
+                             shape=(n + k, n + k)).toarray()
+        assert np.allclose(J.base.toarray(), full[:n, :n], rtol=1e-14, atol=0.0)
+        assert np.allclose(J.left.toarray(), full[:n, n:], rtol=1e-14, atol=0.0)
+        assert np.allclose(J.right.toarray(), full[n:, :n].T, rtol=1e-14, atol=0.0)
+        assert np.allclose(J.system.toarray(), full, rtol=1e-14, atol=0.0)
+        assert np.array_equal(LowRankUpdate(J.base, J.left, J.right).bordered().toarray(), J.system.toarray())
+        # the exact zero stays an explicit entry, so the pattern does not depend on the values
+        assert J.system.nnz == len(np.unique((cols.astype(np.int64) * (n + k) + rows))) + k
+        b = rng.normal(size=n)
+        x = solve(factorise(J), b)
+        assert np.allclose(J.tocsr() @ x, b, atol=1e-10)
+
+
+def test_kept_triplets_record_once_and_refuse_another_sequence(rng):
+    from fvsolver.linear import KeptTriplets
+    n, k, rows, cols, vals = bordered_triplets(rng)
+    kept = KeptTriplets(n, k)
+    kept.begin()
+    kept.add(rows, cols, vals)
+    first = kept.matrix().system.toarray()
+    kept.begin()
+    kept.add(None, None, 2.0 * vals)  # later calls give the values only
+    assert np.allclose(kept.matrix().system.toarray()[:n], 2.0 * first[:n], rtol=1e-14, atol=0.0)
+    kept.begin()
+    with pytest.raises(ValueError):  # a block of another length
+        kept.add(None, None, vals[:-1])
+    kept.begin()
+    kept.add(None, None, vals)
+    with pytest.raises(ValueError, match="more blocks"):
+        kept.add(None, None, vals)
+    kept.begin()
+    with pytest.raises(ValueError, match="recorded"):  # fewer blocks than recorded
+        kept.matrix()
+    kept.forget()
+    kept.begin()
+    kept.add(rows[:10], cols[:10], vals[:10])  # afresh
+    assert kept.matrix().system.nnz <= 10 + k
+
+
+def test_a_kept_bordered_pattern_is_factorised_with_one_ordering_and_the_same_answer(rng):
+    """The factoriser's compiled row scaling and gather give the NumPy path's factor bit for bit."""
+    from fvsolver.linear import BorderedAssembly
+    n, k, rows, cols, vals = bordered_triplets(rng)
+    assembly = BorderedAssembly(n, k, rows, cols)
+    kept = Factoriser()
+    for _ in range(3):
+        assembly.values[: len(vals)] = vals * (1.0 + rng.random(len(vals)))
+        J = assembly()
+        b = rng.normal(size=n)
+        x = solve(kept(J), b)
+        fresh = LowRankUpdate(J.base.tocsr(), J.left.tocsr(), J.right.tocsr())  # no system handed over
+        assert np.allclose(x, solve(factorise(fresh), b), rtol=1e-10, atol=1e-12)
+        assert np.allclose(J @ x, b, atol=1e-10)
+    assert kept.orderings == 1
+
+
+def test_with_data_gives_the_constructors_matrix(rng):
+    from fvsolver.linear import with_data
+    A = laplacian(6)
+    for template in (A.tocsr(), A.tocsc()):
+        data = rng.normal(size=template.nnz)
+        got = with_data(template, data)
+        want = template.__class__((data, template.indices, template.indptr), shape=template.shape)
+        assert type(got) is type(want) and got.shape == want.shape
+        assert np.array_equal(got.toarray(), want.toarray())
+        assert np.array_equal((got @ np.ones(A.shape[0])), want @ np.ones(A.shape[0]))
+        assert got.data is data and template.data is not data  # the template keeps its own values
