@@ -183,3 +183,26 @@ def test_gathers_and_permuted_solves_match_numpy(rng):
     full = np.empty(m)
     full[order] = solution
     assert np.array_equal(x, full[:n])
+
+
+def test_newton_kernels_match_the_steppers_numpy(rng):
+    """The time stepper's fused arithmetic against its NumPy sequence, bit for bit."""
+    from fvsolver.kernels import newton as kn
+    n = 70
+    m, hist, rate, y0, y1, y2 = (rng.normal(size=n) for _ in range(6))
+    out = np.empty(n)
+    kn.negative_residual(1.5, m, hist, 0.3, rate, out)
+    assert np.array_equal(out, ref.negative_residual(1.5, m, hist, 0.3, rate))
+    kn.negative_residual(1, m, hist, 0.3, rate, out)  # backward Euler's integer a0
+    assert np.array_equal(out, ref.negative_residual(1, m, hist, 0.3, rate))
+    delta, scale, weight = rng.normal(size=n), rng.uniform(0.5, 2.0, n), rng.uniform(0.5, 2.0, n)
+    assert kn.update_size(delta, scale, weight) == ref.update_size(delta, scale, weight)
+    assert kn.update_size(delta, scale, np.zeros(0)) == ref.update_size(delta, scale, np.zeros(0))
+    broadcast = np.broadcast_to(1.0, (n,))  # the stepper's scale of a problem with one unit
+    assert kn.update_size(delta, broadcast, weight) == ref.update_size(delta, broadcast, weight)
+    delta[5] = np.nan
+    assert kn.update_size(delta, scale, weight)[2] is False
+    kn.predict_quadratic(y0, y1, y2, 0.7, -0.2, out)
+    assert np.array_equal(out, ref.predict_quadratic(y0, y1, y2, 0.7, -0.2))
+    for relative in (0.0, 1e-3):
+        assert kn.error_norm(0.3, y0, y1, 1e-2, scale, relative) == ref.error_norm(0.3, y0, y1, 1e-2, scale, relative)
