@@ -115,14 +115,6 @@ class Factor:
 
     def solve(self, rhs: np.ndarray) -> np.ndarray:
         m = self._m
-        if COMPILED and self.order is not None:
-            # pad, scale and permute in one pass, and back
-            rho = self.row_scale if self.row_scale is not None else self._ones()
-            b = np.empty(m)
-            ksp.permuted_rhs(rhs, rho, self.order, b)
-            x = np.empty(self.n)
-            ksp.unpermuted(self.lu.solve(b), self.order, x)
-            return x
         b = rhs if m == self.n else np.concatenate([rhs, np.zeros(m - self.n)])
         if self.row_scale is not None:
             b = b * self.row_scale
@@ -131,11 +123,6 @@ class Factor:
         x = np.empty(m)
         x[self.order] = self.lu.solve(b[self.order])
         return x[: self.n]
-
-    def _ones(self) -> np.ndarray:
-        if getattr(self, "_unit", None) is None:
-            self._unit = np.ones(self._m)
-        return self._unit
 
 
 def with_data(template: sp.spmatrix, data: np.ndarray) -> sp.spmatrix:
@@ -452,14 +439,7 @@ class Factoriser:
             template.has_canonical_format = True
             self._permuted = (where, np.asarray(a.indices)[where], indices, indptr, template)
         where, rows = self._permuted[:2]
-        if not COMPILED:
-            data = a.data[where] if rho is None else a.data[where] * rho[rows]
-        else:
-            data = np.empty(len(where))
-            if rho is None:
-                ksp.gather(a.data, where, data)
-            else:
-                ksp.scaled_gather(a.data, where, rows, rho, data)
+        data = a.data[where] if rho is None else a.data[where] * rho[rows]
         return with_data(self._permuted[4], data)
 
     def __call__(self, matrix: sp.spmatrix | LowRankUpdate) -> Factor:

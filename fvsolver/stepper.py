@@ -21,9 +21,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from fvsolver.errors import CaseError, FvsolverError, SolverError
-from fvsolver.kernels import COMPILED
 from fvsolver.kernels import conduction as kern
-from fvsolver.kernels import newton as knewton
 from fvsolver.linear import Factoriser, factorise, solve
 
 SCHEMES = ("backward_euler", "bdf2")
@@ -33,7 +31,6 @@ ROUND_OFF_UPDATE = 1e-12
 ROUND_OFF_ULPS = 16.0
 # an iteration that contracts its update by less than this refactorises the Jacobian
 REFACTOR_CONTRACTION = 0.3
-_NO_WEIGHT = np.zeros(0)
 
 
 @dataclass
@@ -361,20 +358,13 @@ class TimeStepper:
         ts = (h.t[0], h.t[1], h.t[2])
         # y0 + sum l_i (y_i - y0) (the weights sum to one): an unknown that has not changed is
         # extrapolated exactly, without a rounding Newton would then have to undo
-        weights = []
-        for i in (1, 2):
+        pred = y0.copy()
+        for i, yi in enumerate((y1, y2), start=1):
             li = 1.0
             for j in range(3):
                 if j != i:
                     li *= (t - ts[j]) / (ts[i] - ts[j])
-            weights.append(li)
-        if COMPILED:
-            pred = np.empty_like(y0)
-            knewton.predict_quadratic(y0, y1, y2, weights[0], weights[1], pred)
-        else:
-            pred = y0.copy()
-            for li, yi in zip(weights, (y1, y2)):
-                pred += li * (yi - y0)
+            pred += li * (yi - y0)
         delta = h0**2 * (h0 + h1) ** 2 / (6 * (2 * h0 + h1))
         ep = h0 * (h0 + h1) * (h0 + h1 + h2) / 6
         return pred, delta / (delta + ep)
@@ -428,12 +418,8 @@ class TimeStepper:
         ev = p.evaluate(y, t_new)
         self.counters.evaluations += 1
         m, dm = p.capacity(y)
-        rhs = np.empty(p.n)
         for it in range(opt.max_newton_iterations + 1):
-            if COMPILED:
-                knewton.negative_residual(a0, m, hist, dt, ev.rate, rhs)
-            else:
-                rhs = -(a0 * m + hist - dt * ev.rate)
+            residual = a0 * m + hist - dt * ev.rate
             if settled:
                 # the conserved totals must balance to round-off at the state the step ends on: the
                 # evaluation there is the one the next iteration would start from, so an iteration
@@ -452,9 +438,9 @@ class TimeStepper:
                 break
             if lu is None or not p.constant_jacobian and it > 0 and (rate_poor or clipped or fast_changing(y)):
                 lu = self._lu(a0, dt, dm, ev, p.constant_jacobian)
-            delta = solve(lu, rhs)
+            delta = solve(lu, -residual)
             self.counters.newton_iterations += 1
-            if not COMPILED and not np.all(np.isfinite(delta)):
+            if not np.all(np.isfinite(delta)):
                 return None
             clipped = False
             if project is not None:
@@ -470,14 +456,7 @@ class TimeStepper:
                     delta = y - before  # the change actually made
             else:
                 y += delta
-            if COMPILED:  # the update's size (and its weighted size) in one pass
-                norm, weighted, finite = knewton.update_size(delta, self._scale,
-                                                             _NO_WEIGHT if weight is None else weight)
-                if not finite:
-                    return None
-            else:
-                norm = float(np.max(np.abs(delta) / self._scale))
-                weighted = None
+            norm = float(np.max(np.abs(delta) / self._scale))
             rate_poor = norm > REFACTOR_CONTRACTION * prev_norm
             prev_before, prev_norm = prev_norm, norm
             if p.exact_jacobian:
@@ -496,9 +475,8 @@ class TimeStepper:
             settled = norm <= opt.newton_tolerance or (norm <= 1e3 * opt.newton_tolerance and norm > 0.5 * prev_before)
             if weight is not None and it >= 1 and not settled:
                 contraction = norm / prev_before
-                if weighted is None:
-                    weighted = float(np.max(np.abs(delta) * weight))
-                settled = contraction < 0.5 and weighted * contraction / (1.0 - contraction) <= 1.0
+                settled = (contraction < 0.5 and
+                           float(np.max(np.abs(delta) * weight)) * contraction / (1.0 - contraction) <= 1.0)
             if not np.all(np.isfinite(y)):
                 return None
             ev = p.evaluate(y, t_new)
@@ -513,16 +491,9 @@ class TimeStepper:
         self.balance_error.update(errors)
         err = 0.0
         if opt.adaptive:
-            err = self._error(est_factor, y, y_pred)
+            est = est_factor * np.abs(y - y_pred)
+            err = float(np.max(est / (opt.tolerance * self._scale + opt.relative_tolerance * np.abs(y))))
         return y, m_new, err, ev, order, w_new, a0
-
-    def _error(self, factor: float, y: np.ndarray, y_pred: np.ndarray) -> float:
-        """The step's error estimate in tolerance units (the largest over the unknowns)."""
-        opt = self.options
-        if COMPILED:
-            return knewton.error_norm(factor, y, y_pred, opt.tolerance, self._scale, opt.relative_tolerance)
-        return float(np.max(factor * np.abs(y - y_pred) / (opt.tolerance * self._scale
-                                                            + opt.relative_tolerance * np.abs(y))))
 
     def _balance(self, m_new, ev, dt, a0, a2, inflow=None):
         """Each conserved total's inflow over the step by the scheme's quadrature, and the relative
@@ -581,7 +552,8 @@ class TimeStepper:
         err = 0.0
         if opt.adaptive:
             y_pred, est_factor = self._predict(dt, order)
-            err = self._error(est_factor, y, y_pred)
+            err = float(np.max(est_factor * np.abs(y - y_pred) / (opt.tolerance * self._scale
+                                                                   + opt.relative_tolerance * np.abs(y))))
         return y, m_new, err, None, order, w_new, a0
 
     def _affine_inflow(self, ev, delta):

@@ -60,24 +60,3 @@ def affine_update(y0, delta, capacity, m0, m1, inflow, a0, a1, a2, dt):
 def gross_exchange(T, cells, slope, reference):
     return float(np.abs(slope * (T[cells] - reference[cells])).sum())
 
-
-# the time stepper's arithmetic (fvsolver.kernels.newton), as fvsolver.stepper writes it without them
-def negative_residual(a0, m, hist, dt, rate):
-    return -(a0 * m + hist - dt * rate)
-
-
-def update_size(delta, scale, weight):
-    norm = float(np.max(np.abs(delta) / scale))
-    weighted = float(np.max(np.abs(delta) * weight)) if len(weight) == len(delta) else 0.0
-    return norm, weighted, bool(np.all(np.isfinite(delta)))
-
-
-def predict_quadratic(y0, y1, y2, l1, l2):
-    pred = y0.copy()
-    pred += l1 * (y1 - y0)
-    pred += l2 * (y2 - y0)
-    return pred
-
-
-def error_norm(factor, y, pred, tolerance, scale, relative):
-    return float(np.max(factor * np.abs(y - pred) / (tolerance * scale + relative * np.abs(y))))

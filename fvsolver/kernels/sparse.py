@@ -1,8 +1,10 @@
-"""Loops over the stored entries of a CSC matrix (numba): the row scaling and the pre-ordered gather
-that every factorisation of a kept pattern needs, in one pass each instead of a dozen NumPy calls.
+"""Loops over the stored entries of a CSC matrix (numba): the row scaling that every factorisation
+of the device's bordered Jacobian needs, in two passes instead of a dozen NumPy calls (0.02 ms
+instead of 0.15 ms at the demo's 432 cells).
 
-Their NumPy twins are ``fvsolver.linear.row_scale`` and the gather ``data[where] * rho[rows]``; the
-tests compare them. Short symbols only here: j column, i row, a magnitude, rho the row factors.
+Its NumPy twin is ``fvsolver.linear.row_scale``; the tests compare them. Short symbols only here:
+j column, i row, a magnitude, rho the row factors. (Loops that would save less than a kernel's
+first call costs a process, about 5 ms to load it from the cache, stay in NumPy.)
 """
 from __future__ import annotations
 
@@ -59,36 +61,3 @@ def row_scale(indptr, indices, data, rho):
             lifted = True
     return lifted
 
-
-@jit
-def scaled_gather(data, where, rows, rho, out):
-    """out[k] = data[where[k]] * rho[rows[k]]: the entries in a permuted order, their rows scaled."""
-    for k in range(where.shape[0]):
-        out[k] = data[where[k]] * rho[rows[k]]
-
-
-@jit
-def gather(data, where, out):
-    """out[k] = data[where[k]]."""
-    for k in range(where.shape[0]):
-        out[k] = data[where[k]]
-
-
-@jit
-def permuted_rhs(rhs, rho, order, out):
-    """out[i] = b[order[i]] * rho[order[i]], b the right-hand side padded with zeros to out's length
-    (the bordered rows): the right-hand side of a row-scaled, symmetrically pre-ordered system."""
-    n = rhs.shape[0]
-    for i in range(order.shape[0]):
-        j = order[i]
-        out[i] = (rhs[j] if j < n else 0.0) * rho[j]
-
-
-@jit
-def unpermuted(solution, order, out):
-    """out[order[i]] = solution[i] for the order's entries inside out (the bordered unknowns dropped)."""
-    n = out.shape[0]
-    for i in range(order.shape[0]):
-        j = order[i]
-        if j < n:
-            out[j] = solution[i]

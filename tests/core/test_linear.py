@@ -199,7 +199,7 @@ def test_kept_triplets_record_once_and_refuse_another_sequence(rng):
 
 
 def test_a_kept_bordered_pattern_is_factorised_with_one_ordering_and_the_same_answer(rng):
-    """The factoriser's compiled row scaling and gather give the NumPy path's factor bit for bit."""
+    """A kept pattern handed over as its bordered system: one ordering, the answers of fresh factors."""
     from fvsolver.linear import BorderedAssembly
     n, k, rows, cols, vals = bordered_triplets(rng)
     assembly = BorderedAssembly(n, k, rows, cols)
