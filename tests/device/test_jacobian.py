@@ -94,3 +94,36 @@ def test_device_jacobian_is_exact_without_the_deferred_correction():
         fd = (residual(up) - residual(down)) / (2 * h)
         # differencing error, and the round-off of the residual's largest terms over 2 h
         assert np.max(np.abs(J[:, j] - fd)) <= 1e-5 * np.max(np.abs(fd)) + 1e-14 * content / h, j
+
+
+def test_a_whole_devices_jacobian_keeps_one_pattern_standing_and_tipped():
+    """The Jacobian is assembled into a pattern recorded once per run (every entry given at every
+    call, exact zeros included): tipping the device (the joined vapour spaces' flow and its
+    derivatives appear) changes the values only, the factoriser keeps its one ordering, and the
+    kept assembly gives what a fresh recording in the tipped state gives."""
+    from fvsolver.linear import Factoriser
+    from tests.device.cycle_helpers import whole_case
+    setup = build(whole_case(time={"end": 1.0}))
+    problem = setup.problem
+    stepper = TimeStepper(problem, setup.initial, 0.0, 1.0, setup.options)
+    while stepper.step():
+        pass
+    y, t = stepper.y.copy(), stepper.t
+    alpha0, dt = 1.5, 0.2
+    standing = problem.jacobian(alpha0, dt, problem.capacity(y)[1], problem.evaluate(y, t))
+    problem.tipped = True
+    problem._context_cache = None
+    ev = problem.evaluate(y, t)
+    assert ev.extras["joint_flow"] != 0.0  # the tipped state really couples the pool and the head
+    dm = problem.capacity(y)[1]
+    tipped = problem.jacobian(alpha0, dt, dm, ev)
+    assert tipped.system.indices is standing.system.indices  # the same kept pattern
+    assert np.abs(tipped.tocsr() - standing.tocsr()).max() > 0.0
+    keeper = Factoriser()
+    b = np.random.default_rng(2).normal(size=problem.n)
+    for J in (standing, tipped):
+        assert np.allclose(J @ solve(keeper(J), b), b, atol=1e-8 * np.abs(b).max())
+    assert keeper.orderings == 1
+    problem._triplets.forget()  # a fresh recording in the tipped state: the same matrix
+    again = problem.jacobian(alpha0, dt, dm, ev)
+    assert np.array_equal(again.tocsr().toarray(), tipped.tocsr().toarray())
