@@ -37,8 +37,6 @@ import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 
 from fvsolver.errors import SolverError
-from fvsolver.kernels import COMPILED
-from fvsolver.kernels import sparse as ksp
 
 # MMD on A^T + A keeps the fill of these near-symmetric matrices about half of COLAMD's;
 # with SymmetricMode SuperLU prefers the diagonal pivots, which are dominant here.
@@ -346,6 +344,58 @@ def row_scale(a: sp.csc_matrix) -> np.ndarray | None:
     return rho if np.any(rho > 1.0) else None
 
 
+class _RowScaling:
+    """:func:`row_scale` for matrices of one canonical CSC pattern, the pattern's index work done
+    once: each call is a few whole-array operations and two ``reduceat`` maxima (0.03-0.05 ms on the
+    demo's bordered Jacobian instead of 0.15 ms), the same maxima and divisions, so the same factors
+    bit for bit."""
+
+    def __init__(self, a: sp.csc_matrix):
+        m, nnz = a.shape[0], a.nnz
+        self.m = m
+        counts = np.diff(a.indptr)
+        self.cols = np.repeat(np.arange(m), counts)
+        self.rows = np.asarray(a.indices)
+        self.other = self.rows != self.cols
+        self.diag_at = np.flatnonzero(~self.other)
+        self.diag_col = self.cols[self.diag_at]
+        # segment starts for reduceat (an empty segment is set to zero afterwards)
+        self.col_start = np.minimum(a.indptr[:-1], max(nnz - 1, 0))
+        self.col_empty = counts == 0
+        self.by_row = np.argsort(self.rows, kind="stable")
+        row_counts = np.bincount(self.rows, minlength=m)
+        self.row_start = np.minimum(np.concatenate([[0], np.cumsum(row_counts)[:-1]]), max(nnz - 1, 0))
+        self.row_empty = row_counts == 0
+
+    def __call__(self, data: np.ndarray) -> np.ndarray | None:
+        m = self.m
+        if len(data) == 0:
+            return None
+        mag = np.abs(data)
+        diag = np.zeros(m)
+        diag[self.diag_col] = mag[self.diag_at]
+        off = mag.copy()
+        off[self.diag_at] = 0.0  # the column maxima of the other entries (magnitudes, so 0 is neutral)
+        colmax = np.maximum.reduceat(off, self.col_start)
+        colmax[self.col_empty] = 0.0
+        weak = (colmax > diag) & (diag > 0.0)
+        if not weak.any():
+            return None
+        below = diag[self.cols]
+        sel = self.other & weak[self.rows] & (below > 0.0)
+        with np.errstate(over="ignore"):
+            ratio = np.divide(mag, below, out=np.zeros(len(mag)), where=sel)
+            reach = np.maximum.reduceat(ratio[self.by_row], self.row_start)
+            reach[self.row_empty] = 0.0
+            want = np.ones(m)
+            want[weak] = colmax[weak] / diag[weak]
+            cap = np.full(m, np.inf)
+            cap[reach > 0.0] = 1.0 / reach[reach > 0.0]
+        rho = np.maximum(np.minimum(want, cap), 1.0)
+        rho[~np.isfinite(rho)] = 1.0
+        return rho if np.any(rho > 1.0) else None
+
+
 def factorise(matrix: sp.spmatrix | LowRankUpdate) -> Factor:
     """LU factors of ``matrix`` with a fresh ordering; a singular matrix raises SolverError."""
     return Factoriser()(matrix)
@@ -380,6 +430,7 @@ class Factoriser:
         self._order: np.ndarray | None = None
         self._permuted = None  # (where each entry of the pattern goes, its row, indices, indptr) under the order
         self._seen = (None, None)  # index arrays last found equal to the pattern's
+        self._scaling: _RowScaling | None = None  # the row scaling's pattern work, for the pattern
         self._assemble = Assembler()
         self.orderings = 0  # fresh orderings computed (a counter for tests and benchmarks)
 
@@ -396,7 +447,7 @@ class Factoriser:
         self._keys = _keys(self._pattern)
         self._order = np.asarray(order)
         self._permuted = None
-        self._seen = (None, None)
+        self._seen, self._scaling = (None, None), None
 
     def _same_pattern(self, a: sp.csc_matrix) -> bool:
         p = self._pattern
@@ -419,7 +470,7 @@ class Factoriser:
         if not inside.all():
             self._keys = np.union1d(self._keys, keys)
             self._pattern, self._order, self._permuted = _from_keys(self._keys, a.shape), None, None
-            self._seen = (None, None)
+            self._seen, self._scaling = (None, None), None
             pos = np.searchsorted(self._keys, keys)
         data = np.zeros(len(self._keys))
         data[pos] = a.data
@@ -449,7 +500,12 @@ class Factoriser:
         if self._pattern is not None and a.shape == self._pattern.shape and not same:
             a = self._on_pattern(a)
             same = True
-        rho = _row_scale(a)
+        if same:
+            if self._scaling is None:
+                self._scaling = _RowScaling(a)
+            rho = self._scaling(a.data)
+        else:
+            rho = row_scale(a)
         if self._order is not None and same:
             return Factor(_splu(self._pre_ordered(a, rho), _PRE_ORDERED), n, self._order, rho)
         if rho is not None:  # the same pattern, rows scaled (explicit zeros kept)
@@ -460,19 +516,11 @@ class Factoriser:
         if not same:
             self._pattern = sp.csc_matrix((np.zeros(a.nnz), a.indices.copy(), a.indptr.copy()), shape=a.shape)
             self._keys = _keys(a)
-            self._seen = (None, None)
+            self._seen, self._scaling = (None, None), None
         # SuperLU factorises Pr A Pc; symmetric pre-ordering with the inverse of perm_c
         # reproduces its column order (and so its fill)
         self._order = np.argsort(lu.perm_c)
         return Factor(lu, n, None, rho)
-
-
-def _row_scale(a: sp.csc_matrix) -> np.ndarray | None:
-    """:func:`row_scale` by its compiled twin where numba compiles."""
-    if not COMPILED:
-        return row_scale(a)
-    rho = np.empty(a.shape[0])
-    return rho if ksp.row_scale(a.indptr, a.indices, a.data, rho) else None
 
 
 def solve(lu: Factor, rhs: np.ndarray) -> np.ndarray:

@@ -59,4 +59,3 @@ def affine_update(y0, delta, capacity, m0, m1, inflow, a0, a1, a2, dt):
 
 def gross_exchange(T, cells, slope, reference):
     return float(np.abs(slope * (T[cells] - reference[cells])).sum())
-

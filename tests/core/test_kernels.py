@@ -133,33 +133,3 @@ def test_fluid_property_kernels_match_their_numpy_twins(rng):
         np.testing.assert_allclose(out, fluid._latent_heat_numpy(T), rtol=1e-14)
         np.testing.assert_allclose(fluid.latent_heat(T), [fluid.latent_heat(float(t)) for t in T], rtol=1e-14)
     assert checked >= 1
-
-
-# -- the sparse kernels of the factorisation against the NumPy path of fvsolver.linear -------------
-def weak_rows_matrix(rng, n: int = 40):
-    """A canonical CSC matrix with dominant rows and a few weak ones (small diagonals beside large
-    column entries), some zero diagonals and an overflowing ratio."""
-    import scipy.sparse as sp
-    A = sp.random(n, n, density=0.15, random_state=np.random.RandomState(1), format="lil")
-    A.setdiag(rng.uniform(1.0, 2.0, n))
-    A[3, 3], A[7, 7], A[9, 9] = 1e-6, 0.0, 1e-300  # weak, absent pivot, and a ratio that overflows
-    A[0, 3], A[12, 3], A[9, 5] = 50.0, -80.0, 1e10
-    A = A.tocsc()
-    A.sum_duplicates()
-    return A
-
-
-def test_row_scale_kernel_matches_numpy(rng):
-    from fvsolver import linear
-    from fvsolver.kernels import sparse as ksp
-    A = weak_rows_matrix(rng)
-    want = linear.row_scale(A)
-    rho = np.empty(A.shape[0])
-    assert ksp.row_scale(A.indptr, A.indices, A.data, rho)
-    assert want is not None and np.array_equal(rho, want)  # bit for bit: the same operations
-    dominant = A.__class__(A.shape)
-    dominant.setdiag(np.ones(A.shape[0]))
-    dominant = dominant.tocsc()
-    assert linear.row_scale(dominant) is None
-    assert not ksp.row_scale(dominant.indptr, dominant.indices, dominant.data, rho) and np.all(rho == 1.0)
-

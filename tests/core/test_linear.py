@@ -226,3 +226,31 @@ def test_with_data_gives_the_constructors_matrix(rng):
         assert np.array_equal(got.toarray(), want.toarray())
         assert np.array_equal((got @ np.ones(A.shape[0])), want @ np.ones(A.shape[0]))
         assert got.data is data and template.data is not data  # the template keeps its own values
+
+
+def weak_rows_matrix(rng, n: int = 40) -> sp.csc_matrix:
+    """A canonical CSC matrix with dominant rows and a few weak ones (small diagonals beside large
+    column entries), an absent pivot, a ratio that overflows, and an empty row and column."""
+    A = sp.random(n, n, density=0.15, random_state=np.random.RandomState(1), format="lil")
+    A.setdiag(rng.uniform(1.0, 2.0, n))
+    A[3, 3], A[7, 7], A[9, 9] = 1e-6, 0.0, 1e-300
+    A[0, 3], A[12, 3], A[9, 5] = 50.0, -80.0, 1e10
+    A[20, :] = 0.0
+    A[:, 21] = 0.0
+    A = A.tocsc()
+    A.eliminate_zeros()
+    A.sum_duplicates()
+    return A
+
+
+def test_the_kept_row_scaling_gives_row_scale_bit_for_bit(rng):
+    from fvsolver.linear import _RowScaling, row_scale
+    A = weak_rows_matrix(rng)
+    scaling = _RowScaling(A)
+    for _ in range(3):  # new values on the kept pattern
+        B = A.__class__((A.data * rng.uniform(0.5, 2.0, A.nnz), A.indices, A.indptr), shape=A.shape)
+        want, got = row_scale(B), scaling(B.data)
+        assert want is not None and np.array_equal(got, want)
+    assert np.sum(want > 1.0) >= 2  # weak rows were lifted (the test has something to compare)
+    dominant = sp.identity(8, format="csc")
+    assert _RowScaling(dominant)(dominant.data) is None and row_scale(dominant) is None
