@@ -31,6 +31,9 @@ ROUND_OFF_UPDATE = 1e-12
 ROUND_OFF_ULPS = 16.0
 # an iteration that contracts its update by less than this refactorises the Jacobian
 REFACTOR_CONTRACTION = 0.3
+# a step whose error estimate at a contracting Newton iterate exceeds this many tolerances is rejected
+# there, before its Newton loop ends
+EARLY_REJECTION = 2.0
 
 
 @dataclass
@@ -479,6 +482,15 @@ class TimeStepper:
                            float(np.max(np.abs(delta) * weight)) * contraction / (1.0 - contraction) <= 1.0)
             if not np.all(np.isfinite(y)):
                 return None
+            if weight is not None and not settled and (it == 0 or contraction < 0.5):
+                # an iterate already this far from the predictor (the corrections left are a small
+                # fraction of the update just made: contraction < 0.5, or after the first update,
+                # whose contraction is not known yet, twice as far) is rejected without converging
+                # it first; the retake's step follows from this estimate
+                err = float(np.max(est_factor * np.abs(y - y_pred)
+                                   / (opt.tolerance * self._scale + opt.relative_tolerance * np.abs(y))))
+                if err > (2.0 * EARLY_REJECTION if it == 0 else EARLY_REJECTION):
+                    return y, None, err, None, order, None, a0
             ev = p.evaluate(y, t_new)
             self.counters.evaluations += 1
             m, dm = p.capacity(y)
