@@ -346,9 +346,9 @@ def row_scale(a: sp.csc_matrix) -> np.ndarray | None:
 
 class _RowScaling:
     """:func:`row_scale` for matrices of one canonical CSC pattern, the pattern's index work done
-    once: each call is a few whole-array operations and two ``reduceat`` maxima (0.03-0.05 ms on the
-    demo's bordered Jacobian instead of 0.15 ms), the same maxima and divisions, so the same factors
-    bit for bit."""
+    once (and the weak rows' entries while the weak rows stay the same): a few whole-array
+    operations and two ``reduceat`` maxima, the same maxima and divisions as ``row_scale``, so the
+    same factors bit for bit."""
 
     def __init__(self, a: sp.csc_matrix):
         m, nnz = a.shape[0], a.nnz
@@ -362,10 +362,10 @@ class _RowScaling:
         # segment starts for reduceat (an empty segment is set to zero afterwards)
         self.col_start = np.minimum(a.indptr[:-1], max(nnz - 1, 0))
         self.col_empty = counts == 0
-        self.by_row = np.argsort(self.rows, kind="stable")
-        row_counts = np.bincount(self.rows, minlength=m)
-        self.row_start = np.minimum(np.concatenate([[0], np.cumsum(row_counts)[:-1]]), max(nnz - 1, 0))
-        self.row_empty = row_counts == 0
+        self.by_row = np.argsort(self.rows, kind="stable")  # the entries in row order
+        self.row_counts = np.bincount(self.rows, minlength=m)
+        self.row_ptr = np.concatenate([[0], np.cumsum(self.row_counts)])
+        self._weak = None  # the weak rows of the last call, and their entries (below)
 
     def __call__(self, data: np.ndarray) -> np.ndarray | None:
         m = self.m
@@ -381,12 +381,23 @@ class _RowScaling:
         weak = (colmax > diag) & (diag > 0.0)
         if not weak.any():
             return None
-        below = diag[self.cols]
-        sel = self.other & weak[self.rows] & (below > 0.0)
+        if self._weak is None or not np.array_equal(weak, self._weak):
+            # the weak rows' entries, row by row (the set is the same from one call to the next)
+            rows = np.flatnonzero(weak)
+            counts = self.row_counts[rows]  # >= 1: a weak row has its diagonal
+            ends = np.cumsum(counts)
+            starts = np.concatenate([[0], ends[:-1]])
+            entries = self.by_row[np.repeat(self.row_ptr[rows] - starts, counts) + np.arange(ends[-1])]
+            self._weak = weak
+            self._entries = (rows, entries, starts, self.other[entries], self.cols[entries])
+        rows, entries, starts, other, cols = self._entries
+        below = diag[cols]
+        sel = other & (below > 0.0)
         with np.errstate(over="ignore"):
-            ratio = np.divide(mag, below, out=np.zeros(len(mag)), where=sel)
-            reach = np.maximum.reduceat(ratio[self.by_row], self.row_start)
-            reach[self.row_empty] = 0.0
+            # how large a weak row's entries are against the diagonals of their columns
+            ratio = np.divide(mag[entries], below, out=np.zeros(len(entries)), where=sel)
+            reach = np.zeros(m)
+            reach[rows] = np.maximum.reduceat(ratio, starts)
             want = np.ones(m)
             want[weak] = colmax[weak] / diag[weak]
             cap = np.full(m, np.inf)

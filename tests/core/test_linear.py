@@ -252,5 +252,14 @@ def test_the_kept_row_scaling_gives_row_scale_bit_for_bit(rng):
         want, got = row_scale(B), scaling(B.data)
         assert want is not None and np.array_equal(got, want)
     assert np.sum(want > 1.0) >= 2  # weak rows were lifted (the test has something to compare)
+    # a weak row turning strong and back (the kept set of weak rows' entries is renewed)
+    diagonal = np.flatnonzero(A.indices == np.repeat(np.arange(A.shape[0]), np.diff(A.indptr)))
+    for factor in (1e12, 1.0):
+        data = A.data.copy()
+        data[diagonal[3]] *= factor
+        B = A.__class__((data, A.indices, A.indptr), shape=A.shape)
+        want, got = row_scale(B), scaling(B.data)
+        assert (want is None and got is None) or np.array_equal(got, want)
+    assert scaling._weak[3]
     dominant = sp.identity(8, format="csc")
     assert _RowScaling(dominant)(dominant.data) is None and row_scale(dominant) is None
