@@ -171,6 +171,7 @@ class ConductionProblem:
         self._constant_k = all(not m.context_dependent and m.conductivity.is_constant for m in self.materials)
         self._constant_c = all(not m.context_dependent and m.heat_capacity.is_constant for m in self.materials)
         self._cells = [np.flatnonzero(mesh.cell_material == i) for i in range(len(self.materials))]
+        self._fixed_per_cell = {}
         self._boundary_cells = np.unique(mesh.boundary_cell)
         self._surface_guess: np.ndarray | None = None
         self._correction_cache = None
@@ -188,7 +189,7 @@ class ConductionProblem:
         ]
         self._every_flux_group = self._flux_groups
         self._compiled = None
-        self._compiled_out = None
+        self._g_last = self._kf_last = None
         self.compile_surfaces(True)
         g = np.empty(mesh.n_faces)
         if self._constant_k:
@@ -206,10 +207,30 @@ class ConductionProblem:
 
     # -- properties -------------------------------------------------------------------------
     def _per_cell(self, T: np.ndarray, attribute: str, context) -> np.ndarray:
-        out = np.empty(self.n)
-        for m, cells in zip(self.materials, self._cells):
+        fixed = self._fixed_per_cell.get(attribute)
+        if fixed is None:
+            fixed = self._fixed_per_cell[attribute] = self._split_fixed(attribute)
+        base, varying = fixed
+        out = np.empty(self.n) if base is None else base.copy()
+        for m, cells in varying:
             out[cells] = getattr(m, attribute)(T[cells], context)
         return out
+
+    def _split_fixed(self, attribute: str):
+        """(values of the materials whose property is one constant, filled once, or None; the
+        (material, cells) pairs left to evaluate at every call)."""
+        constant = {"conductivity_at": "conductivity", "volumetric_heat_capacity": "heat_capacity"}.get(attribute)
+        pairs = list(zip(self.materials, self._cells))
+        if constant is None:
+            return None, pairs
+        is_fixed = [not m.context_dependent and getattr(m, constant).is_constant for m, _ in pairs]
+        if not any(is_fixed):
+            return None, pairs
+        base = np.zeros(self.n)
+        for (m, cells), f in zip(pairs, is_fixed):
+            if f:
+                base[cells] = getattr(m, attribute)(np.full(cells.size, REFERENCE_TEMPERATURE), None)
+        return base, [pair for pair, f in zip(pairs, is_fixed) if not f]
 
     def conductivity(self, T: np.ndarray, context=None) -> np.ndarray:
         """(n_cells,) W/(m K)."""
@@ -257,52 +278,45 @@ class ConductionProblem:
         return (v * self._per_cell(T, "volumetric_energy", context),
                 v * self._per_cell(T, "volumetric_heat_capacity", context))
 
-    def _surface(self, T, time, grad, k, context=None, reuse=None):
-        """Surface temperatures, heat fluxes and their T_P derivatives on every boundary face."""
+    def _surface(self, T, time, k, context=None):
+        """Surface temperatures, heat fluxes and their T_P derivatives on every boundary face, at
+        the cells' own temperatures (the fixed-temperature faces' offset correction, which needs
+        the gradients, is ``_offset_correction``)."""
         mesh, st = self.mesh, self.stencil
         bc = mesh.boundary_cell
         kappa = k[bc] / st.boundary_distance
         # the tangential offset (non-orthogonal boundary cells) is corrected on fixed-temperature
         # faces; on flux faces the surface balance is taken at the cell's own temperature, so the
         # surface solve never waits on the gradients (first order in the offset there)
-        t_foot = T[bc].copy()
+        t_foot = T[bc]
         t_s = t_foot.copy()
-        q = np.zeros(mesh.n_boundary)
-        dq_dtp = np.zeros(mesh.n_boundary)
-        g1_all = np.zeros(mesh.n_boundary)
+        nb = t_s.size
+        q = np.zeros(nb)
+        dq_dtp = np.zeros(nb)
+        g1_all = np.zeros(nb)
         for cond, faces in self._dirichlet_groups:
             t_s[faces] = _evaluate(cond.terms[0].temperature, mesh.boundary_centres[faces], time)
-            foot = t_foot[faces]
-            if grad is not None:
-                cells = bc[faces]
-                foot = foot + grad[cells, 0] * st.boundary_offset[faces, 0] + grad[cells, 1] * st.boundary_offset[faces, 1]
-            q[faces] = kappa[faces] * (t_s[faces] - foot)
+            q[faces] = kappa[faces] * (t_s[faces] - t_foot[faces])
             dq_dtp[faces] = -kappa[faces]
         surface_terms = None
         if self._compiled is not None:
-            # every coupled face in one compiled call (its outputs kept for the second pass of a
-            # corrected evaluation, which reuses the same surface temperatures)
+            # every coupled face in one compiled call
             faces = self._compiled.faces
-            if reuse is None:
-                guess = None if self._surface_guess is None else self._surface_guess[faces]
-                self._compiled_out = self._compiled.solve(kappa[faces], t_foot[faces], guess, time,
-                                                          mesh.boundary_centres, context)
-            out = self._compiled_out
+            guess = None if self._surface_guess is None else self._surface_guess[faces]
             kf, tf = kappa[faces], t_foot[faces]
+            out = self._compiled.solve(kf, tf, guess, time, mesh.boundary_centres, context)
             ts, g1 = out[:, _ks.TS], out[:, _ks.DQ]
             t_s[faces] = ts
             g1_all[faces] = g1
             q[faces] = kf * (ts - tf)
             dq_dtp[faces] = kf * g1 / (kf - g1)
-            surface_terms = np.full((mesh.n_boundary, _ks.OUTPUTS), np.nan)
+            surface_terms = np.full((nb, _ks.OUTPUTS), np.nan)
             surface_terms[faces] = out
         for cond, faces in self._flux_groups:
             if not cond.terms:
                 continue
             kf, tf, xc = kappa[faces], t_foot[faces], mesh.boundary_centres[faces]
-            if reuse is not None:
-                ts = reuse[faces]
-            elif all(isinstance(t, (HeatFlux, Convection)) for t in cond.terms):
+            if all(isinstance(t, (HeatFlux, Convection)) for t in cond.terms):
                 # affine in T_s: one Newton step from anywhere is exact
                 g0, g1 = _term_sum(cond.terms, tf, time, xc, faces, context)
                 ts = tf + g0 / (kf - g1)
@@ -317,6 +331,16 @@ class ConductionProblem:
         self._last_surface = (kappa, g1_all, surface_terms)
         return t_s, q, dq_dtp
 
+    def _offset_correction(self, T, grad, t_s, q) -> None:
+        """The fixed-temperature faces' heat flux from the foot of the face normal through the cell
+        centre (T_P + grad T . offset), in place on q."""
+        mesh, st = self.mesh, self.stencil
+        kappa = self._last_surface[0]
+        for _, faces in self._dirichlet_groups:
+            cells = mesh.boundary_cell[faces]
+            foot = T[cells] + grad[cells, 0] * st.boundary_offset[faces, 0] + grad[cells, 1] * st.boundary_offset[faces, 1]
+            q[faces] = kappa[faces] * (t_s[faces] - foot)
+
     def evaluate(self, T: np.ndarray, time: float, context=None) -> Evaluation:
         """Heat rate into every cell at temperature ``T`` (K) and ``time`` (s).
 
@@ -325,29 +349,22 @@ class ConductionProblem:
         """
         mesh, st = self.mesh, self.stencil
         k = self.conductivity(T, context)
-        if self._g_constant is not None:
-            g = self._g_constant
-        else:
-            g = np.empty(mesh.n_faces)
-            kern.face_conductance(k, mesh.owner, mesh.neighbour, st.dist_owner, st.dist_neighbour, st.geometry, g)
+        g = self._face_conductance(k)
         rate = np.zeros(self.n)
         kern.face_flux_sum(T, mesh.owner, mesh.neighbour, g, rate)
-        grad = None
+        # surface temperatures first (they do not need the gradients), then, with the correction,
+        # the gradients, the fixed-temperature faces' offset correction and the face corrections
+        t_s, q, dq = self._surface(T, time, k, context)
         if self.correct:
-            # surface temperatures first (they do not need the gradients), then the gradients,
-            # then the fixed-temperature faces' offset correction and the face corrections
-            t_s, _, _ = self._surface(T, time, None, k, context)
             grad = np.zeros((self.n, 2))
             kern.cell_gradients(T, mesh.owner, mesh.neighbour, st.lsq_owner, st.lsq_neighbour,
                                 mesh.boundary_cell, st.lsq_boundary, t_s, grad)
-            t_s, q, dq = self._surface(T, time, grad, k, context, reuse=t_s)
+            self._offset_correction(T, grad, t_s, q)
             self._surface_guess = t_s
-            kf = g / st.geometry
-            kern.correction_flux_sum(grad, mesh.owner, mesh.neighbour, kf, st.weight_owner, st.tangent, rate)
-        else:
-            t_s, q, dq = self._surface(T, time, None, k, context)
-            if not self.boundary.linear:
-                self._surface_guess = t_s
+            kern.correction_flux_sum(grad, mesh.owner, mesh.neighbour, self._face_k(g), st.weight_owner,
+                                     st.tangent, rate)
+        elif not self.boundary.linear:
+            self._surface_guess = t_s
         area = mesh.boundary_areas
         boundary_heat = area * q
         rate += np.bincount(mesh.boundary_cell, boundary_heat, self.n)
@@ -361,6 +378,28 @@ class ConductionProblem:
             source_heat += float(power.sum())
         kappa, g1, surface_terms = self._last_surface
         return Evaluation(rate, bjac, g, t_s, boundary_heat, source_heat, kappa, g1, surface_terms)
+
+    def _face_conductance(self, k: np.ndarray) -> np.ndarray:
+        """Two-point face conductances (W/K) of the conductivities k; the last pair is kept (the
+        conductivity follows only the cap's saturation, constant over most steps). The array
+        handed out is never written to, so evaluations that hold it stay valid."""
+        if self._g_constant is not None:
+            return self._g_constant
+        last = self._g_last
+        if last is not None and np.array_equal(last[0], k):
+            return last[1]
+        mesh, st = self.mesh, self.stencil
+        g = np.empty(mesh.n_faces)
+        kern.face_conductance(k, mesh.owner, mesh.neighbour, st.dist_owner, st.dist_neighbour, st.geometry, g)
+        self._g_last = (k.copy(), g)
+        return g
+
+    def _face_k(self, g: np.ndarray) -> np.ndarray:
+        """g / geometry, the face conductivities of the correction (kept with the g they came from)."""
+        kept = self._kf_last
+        if kept is None or kept[0] is not g:
+            kept = self._kf_last = (g, g / self.stencil.geometry)
+        return kept[1]
 
     def jacobian(self, alpha0: float, dt: float, dm: np.ndarray, ev: Evaluation) -> sp.csr_matrix:
         """J = alpha0 dm/dT - dt dF/dT (two-point part; the deferred correction is left out)."""
