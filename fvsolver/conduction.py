@@ -10,7 +10,7 @@ The stepper advances ``capacity`` (m = rho V e) against ``evaluate`` (the right-
 from __future__ import annotations
 
 from collections.abc import Callable
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from functools import cached_property
 
 import numpy as np
@@ -468,8 +468,31 @@ class _CompiledSurfaces:
     water: np.ndarray
     water_latent: np.ndarray
 
+    kept: list = field(default_factory=lambda: [None], compare=False)  # the parameter rows
+
+    def parameters(self, centres, context) -> np.ndarray:
+        """(n, PARAMETERS), every group's rows. The rows are kept: a term with
+        ``update_surface_parameters(rows, faces, context)`` has them filled once by its
+        ``surface_parameters`` and then rewrites only the columns its context sets, in place (the
+        kernel only reads them, and no evaluation keeps them)."""
+        rows = self.kept[0]
+        if rows is None:
+            rows = self.kept[0] = np.concatenate([term.surface_parameters(f, centres[f], context)
+                                                  for term, f in self.groups])
+            return rows
+        start = 0
+        for term, f in self.groups:
+            view = rows[start:start + f.size]
+            start += f.size
+            update = getattr(term, "update_surface_parameters", None)
+            if update is None:
+                view[:] = term.surface_parameters(f, centres[f], context)
+            else:
+                update(view, f, context)
+        return rows
+
     def solve(self, kappa, t_foot, guess, time, centres, context) -> np.ndarray:
-        params = np.concatenate([term.surface_parameters(f, centres[f], context) for term, f in self.groups])
+        params = self.parameters(centres, context)
         out = np.empty((self.faces.size, _ks.OUTPUTS))
         start = np.zeros(self.faces.size) if guess is None else np.ascontiguousarray(guess)
         _ks.solve_surfaces(self.kinds, params, np.ascontiguousarray(kappa), np.ascontiguousarray(t_foot), start,

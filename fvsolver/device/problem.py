@@ -173,6 +173,13 @@ class DeviceProblem:
         self.cap_volume = float(mesh.cell_volumes[self.cap_cells].sum())
         self.pore_water_capacity = (self.cap_material.porosity * self.cap_volume
                                     * self.cap_material.water_volumetric_heat / spec.cap_water.water_heat_capacity)
+        # the water's sensible enthalpy's fixed factors (_water_sensible)
+        self._charge = spec.cap_water.mode == "charge"
+        self._cap_area = mesh.boundary_areas[self.cap_faces]
+        self._cap_cell_volumes = mesh.cell_volumes[self.cap_cells]
+        self._reservoir_share = self._cap_cell_volumes / self.cap_volume * spec.cap_water.water_heat_capacity
+        self._sensible_slope = self._cap_cell_volumes * self.cap_material.porosity * (
+            self.cap_material.water_volumetric_heat - 1.2 * 1006.0)
         self.inner_area = mesh.boundary_areas[self.inner]
         self.outer_diameter = spec.room.diameter
         self._keep_means(mesh)
@@ -408,22 +415,19 @@ class DeviceProblem:
         dout = np.zeros(self.n_cells)
         per_evaporation = np.zeros(self.n_cells)  # d out / d(evaporation_total)
         cells = self.cap_cells
-        v = self.mesh.cell_volumes[cells]
-        cw = self.spec.cap_water
-        if cw.mode == "charge":
+        v, t_cap = self._cap_cell_volumes, T[cells]
+        if self._charge:
             # water leaving cell P takes its share of the stored sensible energy with it
             ds_dt = -evaporation_total / self.pore_water_capacity
-            de_ds = self.cap_material.denergy_dsaturation(T[cells])
+            de_ds = self.cap_material.denergy_dsaturation(t_cap)
             out[cells] = v * de_ds * ds_dt
-            dout[cells] = v * self.cap_material.porosity * (
-                self.cap_material.water_volumetric_heat - 1.2 * 1006.0) * ds_dt
+            dout[cells] = self._sensible_slope * ds_dt
             per_evaporation[cells] = -v * de_ds / self.pore_water_capacity
         else:
             # the reservoir replaces what evaporates, with water at its own temperature
-            share = evaporation_total * v / self.cap_volume * cw.water_heat_capacity
-            out[cells] = share * (cw.reservoir_temperature - T[cells])
-            dout[cells] = -share
-            per_evaporation[cells] = v / self.cap_volume * cw.water_heat_capacity * (cw.reservoir_temperature - T[cells])
+            per_evaporation[cells] = self._reservoir_share * (self.spec.cap_water.reservoir_temperature - t_cap)
+            out[cells] = evaporation_total * per_evaporation[cells]
+            dout[cells] = -evaporation_total * self._reservoir_share
         self._per_evaporation = per_evaporation
         return out, dout
 
@@ -441,15 +445,14 @@ class DeviceProblem:
         else:
             j, dj_dt, dj_dp, dj_dc = self.wall_term.mass_flux(t_s[self.inner], self.inner, ctx)
             m_e, dme_dt = self.cap_term.mass_flux(t_s[self.cap_faces], ctx)
-        area_cap = mesh.boundary_areas[self.cap_faces]
-        evap_total = float(np.dot(area_cap, m_e))
+        evap_total = float(np.dot(self._cap_area, m_e))
         sensible, dsensible = self._water_sensible(T, evap_total, ctx)
         rate = np.zeros(self.n)
         rate[:n] = ev.rate + sensible
         aj = self.inner_area * j
         rate[self.i_mv] = -aj.sum()
         rate[self.i_c] = aj
-        if self.spec.cap_water.mode == "charge":
+        if self._charge:
             rate[self.i_w] = -evap_total
         bulb = self.spec.second_bulb
         extras = {}
