@@ -7,8 +7,8 @@ the pool's temperature), the wet cap (the same plus evaporation of water) or a c
 
 .. math:: \\kappa (T_s - T_P) = q(T_s)
 
-is solved by Newton's method safeguarded by bisection inside a bracket (q decreases with T_s for
-every kind, so the root is unique). The Python twin is the terms' own ``heat_flux`` through
+is solved by Newton's method safeguarded by bisection inside a bracket that its iterates build
+(q decreases with T_s for every kind, so the root is unique). The Python twin is the terms' own ``heat_flux`` through
 ``fvsolver.surface_balance.solve_surface``; the tests compare them.
 
 Short symbols only here: t temperature (K), q heat flux into the body (W/m2), m mass flux
@@ -133,25 +133,17 @@ def solve_surfaces(kinds, params, kappa, t_foot, guess, fluid, water, water_late
         kp = kappa[i]
         tf = t_foot[i]
         x = guess[i] if guess[i] > 0.0 else tf
-        lo = x - 0.5
-        hi = x + 0.5
-        q, dq, _, _, _, _, _ = _face_flux(kind, lo, p, fluid, water, water_latent)
-        flo = kp * (lo - tf) - q
-        q, dq, _, _, _, _, _ = _face_flux(kind, hi, p, fluid, water, water_latent)
-        fhi = kp * (hi - tf) - q
-        for _ in range(200):  # widen the bracket until F(lo) <= 0 <= F(hi)
-            if flo <= 0.0 and fhi >= 0.0:
-                break
-            w = hi - lo
-            if flo > 0.0:
-                lo -= w
-                q, dq, _, _, _, _, _ = _face_flux(kind, lo, p, fluid, water, water_latent)
-                flo = kp * (lo - tf) - q
-            if fhi < 0.0:
-                hi += w
-                q, dq, _, _, _, _, _ = _face_flux(kind, hi, p, fluid, water, water_latent)
-                fhi = kp * (hi - tf) - q
-        for _ in range(200):
+        # Newton's method on F = kappa (T_s - T_foot) - q(T_s), increasing in T_s: every iterate
+        # sets one side of the bracket [lo, hi] by the sign of F there. A side not yet known is
+        # approached by Newton steps no longer than `reach` (doubled at every such step, as a
+        # bracket is widened); once both are known, a step leaving them is a secant step or a
+        # halving. From a good guess (the last evaluation's) this costs the Newton iterations only.
+        lo = -np.inf
+        hi = np.inf
+        flo = -1.0
+        fhi = 1.0
+        reach = 0.5
+        for _ in range(400):
             q, dq, _, _, _, _, _ = _face_flux(kind, x, p, fluid, water, water_latent)
             f = kp * (x - tf) - q
             df = kp - dq
@@ -161,8 +153,16 @@ def solve_surfaces(kinds, params, kappa, t_foot, guess, fluid, water, water_late
             else:
                 hi = x
                 fhi = f
-            new = x - f / df
-            if not (new >= lo and new <= hi):  # outside the bracket (across a kink): secant, or halve
+            new = x - f / df if df > 0.0 else (x + reach if f <= 0.0 else x - reach)
+            if hi == np.inf or lo == -np.inf:  # one side unknown: a bounded step towards it
+                if new > x + reach:
+                    new = x + reach
+                elif new < x - reach:
+                    new = x - reach
+                if not (new >= lo and new <= hi):
+                    new = x + reach if f <= 0.0 else x - reach
+                reach *= 2.0
+            elif not (new >= lo and new <= hi):  # outside the bracket (across a kink): secant, or halve
                 den = fhi - flo
                 new = (lo * fhi - hi * flo) / den if den > 0.0 else 0.5 * (lo + hi)
                 if not (new > lo and new < hi):
