@@ -28,15 +28,20 @@ _FIGURE_KEYS = ("figsize", "layout", "constrained_layout")
 
 
 def _subplots(nrows: int = 1, ncols: int = 1, **options):
-    """``(figure, axes)`` as ``pyplot.subplots`` gives them, on a figure pyplot never sees."""
+    """``(figure, axes)`` as ``pyplot.subplots`` gives them, on a figure pyplot never sees (with the
+    Agg canvas its PNG is drawn by, so that text can be measured before it is saved)."""
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
     fig = Figure(**{k: options.pop(k) for k in _FIGURE_KEYS if k in options})
+    FigureCanvasAgg(fig)
     return fig, fig.subplots(nrows, ncols, **options)
 
 
 def _save(fig, path: Path) -> None:
     buf = io.BytesIO()
-    # "tight" costs a second draw, but a legend row wider than its panel would be cut off without it
-    fig.savefig(buf, format="png", dpi=130, bbox_inches="tight")
+    # "tight" costs a second draw, but a title wider than a one-panel figure would be cut off without
+    # it. A fast PNG compression: the figures are flat colours, where it costs little size.
+    fig.savefig(buf, format="png", dpi=130, bbox_inches="tight", pil_kwargs={"compress_level": 1})
     atomic_write_bytes(Path(path), buf.getvalue())
 
 
@@ -355,12 +360,26 @@ def _plain_axis(ax, series: list, resolution: float) -> None:
         ax.set_ylim(centre - half, centre + half)
 
 
+# the share of a stacked figure's width its panels keep once their axis labels are laid out: a
+# legend row above a panel is kept narrower than this
+_PANEL_WIDTH_SHARE = 0.74
+
+
 def _legend(ax, handles) -> None:
-    """A legend in a row above the panel, clear of every curve."""
-    if handles:
-        ax.legend(handles=handles, fontsize=7.5, frameon=False, loc="lower left",
-                  bbox_to_anchor=(0.0, 1.0), ncols=min(3, len(handles)), borderaxespad=0.2,
-                  handlelength=2.6, columnspacing=1.4)
+    """A legend in rows above the panel, clear of every curve, and no wider than the panel: the
+    most columns (up to 3) that fit. (A row wider than its panel makes the constrained layout
+    shrink the panel to make room for it, down to a sliver.)"""
+    if not handles:
+        return
+    fig = ax.figure
+    available = _PANEL_WIDTH_SHARE * fig.get_figwidth() * fig.dpi
+    renderer = fig.canvas.get_renderer()
+    for ncols in range(min(3, len(handles)), 0, -1):
+        legend = ax.legend(handles=handles, fontsize=7.5, frameon=False, loc="lower left",
+                           bbox_to_anchor=(0.0, 1.0), ncols=ncols, borderaxespad=0.2,
+                           handlelength=2.6, columnspacing=1.4)
+        if ncols == 1 or legend.get_window_extent(renderer).width <= available:
+            return
 
 
 def history_plot(
@@ -419,6 +438,7 @@ def history_plot(
         For a missing required column, or columns that are not 1D or differ in length.
     """
     cols = _history_columns(history)
+    second = "body" if device else "second bulb"  # a running device's second bulb is its body
     t = cols["time_s"]
     dp = cols["pressure_drop_pa"]
     finite_t = t[np.isfinite(t)]
@@ -454,7 +474,7 @@ def history_plot(
     scale_ref = max(largest, abs(target) if target is not None else 0.0)
     pscale, punit = (1e3, "kPa") if scale_ref >= 5e3 else (1.0, "Pa")
     handles = ax.plot(ts, dp / pscale, color=_DROP_COLOUR, lw=1.8, marker=marker,
-                      label="pressure difference, second bulb - head")
+                      label=f"pressure difference, {second} - head")
     if target is not None:
         handles += [ax.axhline(target / pscale, color=_TARGET_COLOUR, lw=1.1, ls=(0, (5, 3)),
                                label=(f"tips at {target / pscale:.4g} {punit}" if device
@@ -495,6 +515,7 @@ def history_plot(
     if pressures:
         twin = ax.twinx()
         for key, label, colour in pressures:
+            label = label.replace("second bulb", second)
             handles += twin.plot(ts, cols[key] / 1e3, color=colour, lw=1.3, ls=(0, (1, 1.2)),
                                  marker=marker, label=f"{label}, absolute (right)")
         twin.margins(y=0.1)
@@ -508,6 +529,7 @@ def history_plot(
         ax = axes[kinds.index("temperature")]
         handles = []
         for key, label, colour in temps:
+            label = label.replace("second bulb", second + (" (its pool)" if device else ""))
             handles += ax.plot(ts, cols[key], color=colour, lw=1.5, marker=marker, label=label)
         ax.set_ylabel("temperature (K)", fontsize=9)
         _plain_axis(ax, [cols[c[0]] for c in temps], FLAT_RESOLUTION["temperature_k"])

@@ -27,6 +27,8 @@ from fvsolver.linear import Factoriser, factorise, solve
 SCHEMES = ("backward_euler", "bdf2")
 # a Newton update this small (in tolerance units: K for temperatures) is the round-off of the unknowns
 ROUND_OFF_UPDATE = 1e-12
+# a total's balance error below this many ulps of its contents is at its round-off
+ROUND_OFF_ULPS = 16.0
 # an iteration that contracts its update by less than this refactorises the Jacobian
 REFACTOR_CONTRACTION = 0.3
 
@@ -424,8 +426,11 @@ class TimeStepper:
                 # more costs only a solve with the kept factor and the next evaluation
                 w_new, errors = self._balance(m, ev, dt, a0, a2)
                 worst = max(errors.values(), default=0.0)
-                # (or it has stopped falling while the updates are at the round-off of the unknowns)
-                if worst <= opt.balance_tolerance or (worst > 0.5 * last_worst and norm <= ROUND_OFF_UPDATE):
+                # (or every total's error is at the round-off of the total itself, which no iteration
+                # can lower; or it has stopped falling while the updates are at the round-off of the
+                # unknowns)
+                if (worst <= opt.balance_tolerance or self._at_round_off
+                        or (worst > 0.5 * last_worst and norm <= ROUND_OFF_UPDATE)):
                     converged = True
                     break
                 last_worst = worst
@@ -498,13 +503,21 @@ class TimeStepper:
             inflow = {g: ev.inflow(g) for g in self._groups}
             self._gross = {g: ev.gross(g) for g in self._groups}
         w_new, errors = {}, {}
+        at_round_off = True
         for g, sl in self._groups.items():
             w_new[g] = (dt * inflow[g] + a2 * self._inflow[g]) / a0
             stored = float((m_new[sl] - h.m[0][sl]).sum())  # differences first: no cancellation of totals
+            content = float(np.abs(m_new[sl]).sum())
             # relative to the change, the gross exchange, or the round-off level of the total itself
-            scale = max(abs(stored), dt * self._gross[g], 1e-13 * float(np.abs(m_new[sl]).sum()),
-                        self._balance_floor[g], 1e-300)
-            errors[g] = abs(stored - w_new[g]) / scale
+            scale = max(abs(stored), dt * self._gross[g], 1e-13 * content, self._balance_floor[g], 1e-300)
+            missing = abs(stored - w_new[g])
+            errors[g] = missing / scale
+            # the change of a total is known only to the round-off of the contents it is the difference
+            # of: a step whose change is a few ulps of the total (a cap holding grams that loses
+            # nanograms) balances no better than that, however many iterations follow
+            at_round_off = at_round_off and missing <= ROUND_OFF_ULPS * np.finfo(float).eps * (
+                content + float(np.abs(h.m[0][sl]).sum()))
+        self._at_round_off = at_round_off
         return w_new, errors
 
     def _newton_from_predictor(self, order: int) -> bool:

@@ -1,6 +1,7 @@
 """Figures: the mirrored geometry, the material outline, and the PNGs the plot functions write."""
 from __future__ import annotations
 
+import io
 import math
 
 import numpy as np
@@ -144,6 +145,30 @@ def test_history_plot_full(tmp_path):
     path = tmp_path / "history.png"
     plotting.history_plot(_history(), path, 1200.0, 900.0 * math.log(5.0), title="run")
     _png_ok(path)
+
+
+def test_history_plot_panels_keep_the_figure_width_whatever_their_legends(tmp_path, monkeypatch):
+    """Every column the solver writes, with its longest labels (a running head's split rates and
+    cooling): each panel keeps most of the figure's width, its legend rows above it no wider than
+    it. (A legend row wider than its panel once made the constrained layout shrink every panel to
+    a quarter of the figure.)"""
+    h = _history()
+    n = h["time_s"].size
+    h.update({"condensing_rate_kg_s": 2e-6 * np.ones(n), "re_evaporation_rate_kg_s": 5e-7 * np.ones(n),
+              "evaporative_cooling_w": np.linspace(0.99, 0.92, n), "net_heat_out_w": np.linspace(0.98, 0.85, n)})
+    saved = []
+    monkeypatch.setattr(plotting, "_save", lambda fig, path: (fig.savefig(io.BytesIO(), format="png"),
+                                                               saved.append(fig)))
+    plotting.history_plot(h, tmp_path / "history.png", 1200.0, 900.0 * math.log(5.0), title="run")
+    (fig,) = saved
+    renderer = fig.canvas.get_renderer()
+    width = fig.get_figwidth() * fig.dpi
+    panels = [ax for ax in fig.axes if ax.get_legend() is not None]
+    assert len(panels) >= 3
+    for ax in panels:
+        box = ax.get_window_extent(renderer)
+        assert box.width >= 0.6 * width, (box.width, width)
+        assert ax.get_legend().get_window_extent(renderer).width <= box.width * 1.02
 
 
 def test_history_plot_with_only_the_required_columns(tmp_path):
