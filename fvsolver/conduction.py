@@ -300,18 +300,10 @@ class ConductionProblem:
             dq_dtp[faces] = -kappa[faces]
         surface_terms = None
         if self._compiled is not None:
-            # every coupled face in one compiled call
-            faces = self._compiled.faces
-            guess = None if self._surface_guess is None else self._surface_guess[faces]
-            kf, tf = kappa[faces], t_foot[faces]
-            out = self._compiled.solve(kf, tf, guess, time, mesh.boundary_centres, context)
-            ts, g1 = out[:, _ks.TS], out[:, _ks.DQ]
-            t_s[faces] = ts
-            g1_all[faces] = g1
-            q[faces] = kf * (ts - tf)
-            dq_dtp[faces] = kf * g1 / (kf - g1)
+            # every coupled face in one compiled call, which writes its faces' entries in place
             surface_terms = np.full((nb, _ks.OUTPUTS), np.nan)
-            surface_terms[faces] = out
+            self._compiled.solve_into(kappa, t_foot, self._surface_guess, mesh.boundary_centres, context,
+                                      t_s, q, dq_dtp, g1_all, surface_terms)
         for cond, faces in self._flux_groups:
             if not cond.terms:
                 continue
@@ -491,13 +483,16 @@ class _CompiledSurfaces:
                 update(view, f, context)
         return rows
 
-    def solve(self, kappa, t_foot, guess, time, centres, context) -> np.ndarray:
+    def solve_into(self, kappa, t_foot, guess, centres, context, t_s, q, dq_dtp, g1, terms) -> None:
+        """Solve the coupled faces from the boundary-wide kappa, t_foot and guess (None: start at
+        t_foot), writing their entries of t_s, q, dq_dtp, g1 (n_boundary,) and terms (n_boundary,
+        OUTPUTS) in place (``kernels.surfaces.solve_boundary_faces``)."""
         params = self.parameters(centres, context)
-        out = np.empty((self.faces.size, _ks.OUTPUTS))
-        start = np.zeros(self.faces.size) if guess is None else np.ascontiguousarray(guess)
-        _ks.solve_surfaces(self.kinds, params, np.ascontiguousarray(kappa), np.ascontiguousarray(t_foot), start,
-                           self.fluid, self.water, self.water_latent, out)
-        return out
+        _ks.solve_boundary_faces(self.kinds, params, self.faces, kappa, t_foot, _NO_GUESS if guess is None else guess,
+                                 self.fluid, self.water, self.water_latent, t_s, q, dq_dtp, g1, terms)
+
+
+_NO_GUESS = np.zeros(0)
 
 
 def _compiled_surfaces(flux_groups, n_boundary: int):

@@ -120,6 +120,63 @@ def _face_flux(kind, ts, p, fl, water, wl):
 
 
 @jit
+def _solve_face(kind, p, kp, tf, x, fluid, water, water_latent):
+    """T_s of one face: kappa (T_s - T_foot) = q(T_s) from the start x (K)."""
+    # Newton's method on F = kappa (T_s - T_foot) - q(T_s), increasing in T_s: every iterate
+    # sets one side of the bracket [lo, hi] by the sign of F there. A side not yet known is
+    # approached by Newton steps no longer than `reach` (doubled at every such step, as a
+    # bracket is widened); once both are known, a step leaving them is a secant step or a
+    # halving. From a good guess (the last evaluation's) this costs the Newton iterations only.
+    lo = -np.inf
+    hi = np.inf
+    flo = -1.0
+    fhi = 1.0
+    reach = 0.5
+    for _ in range(400):
+        q, dq, _, _, _, _, _ = _face_flux(kind, x, p, fluid, water, water_latent)
+        f = kp * (x - tf) - q
+        df = kp - dq
+        if f <= 0.0:
+            lo = x
+            flo = f
+        else:
+            hi = x
+            fhi = f
+        new = x - f / df if df > 0.0 else (x + reach if f <= 0.0 else x - reach)
+        if hi == np.inf or lo == -np.inf:  # one side unknown: a bounded step towards it
+            if new > x + reach:
+                new = x + reach
+            elif new < x - reach:
+                new = x - reach
+            if not (new >= lo and new <= hi):
+                new = x + reach if f <= 0.0 else x - reach
+            reach *= 2.0
+        elif not (new >= lo and new <= hi):  # outside the bracket (across a kink): secant, or halve
+            den = fhi - flo
+            new = (lo * fhi - hi * flo) / den if den > 0.0 else 0.5 * (lo + hi)
+            if not (new > lo and new < hi):
+                new = 0.5 * (lo + hi)
+        done = abs(new - x) <= 2e-15 * abs(x) or hi - lo <= 4e-15 * abs(x)
+        x = new
+        if done:
+            break
+    return x
+
+
+@jit
+def _store(i, kind, x, p, fluid, water, water_latent, out):
+    q, dq, m, dm, dm_dp, dm_dc, lat = _face_flux(kind, x, p, fluid, water, water_latent)
+    out[i, TS] = x
+    out[i, Q] = q
+    out[i, DQ] = dq
+    out[i, M] = m
+    out[i, DM] = dm
+    out[i, DM_DP] = dm_dp
+    out[i, DM_DC] = dm_dc
+    out[i, LATENT] = lat
+
+
+@jit
 def solve_surfaces(kinds, params, kappa, t_foot, guess, fluid, water, water_latent, out):
     """Surface temperatures of coupled faces: kappa (T_s - T_foot) = q(T_s), face by face.
 
@@ -128,55 +185,30 @@ def solve_surfaces(kinds, params, kappa, t_foot, guess, fluid, water, water_late
     M, M/R, A..E (``water_constants()``); out : (n, OUTPUTS).
     """
     for i in range(kinds.shape[0]):
-        kind = kinds[i]
-        p = params[i]
-        kp = kappa[i]
         tf = t_foot[i]
-        x = guess[i] if guess[i] > 0.0 else tf
-        # Newton's method on F = kappa (T_s - T_foot) - q(T_s), increasing in T_s: every iterate
-        # sets one side of the bracket [lo, hi] by the sign of F there. A side not yet known is
-        # approached by Newton steps no longer than `reach` (doubled at every such step, as a
-        # bracket is widened); once both are known, a step leaving them is a secant step or a
-        # halving. From a good guess (the last evaluation's) this costs the Newton iterations only.
-        lo = -np.inf
-        hi = np.inf
-        flo = -1.0
-        fhi = 1.0
-        reach = 0.5
-        for _ in range(400):
-            q, dq, _, _, _, _, _ = _face_flux(kind, x, p, fluid, water, water_latent)
-            f = kp * (x - tf) - q
-            df = kp - dq
-            if f <= 0.0:
-                lo = x
-                flo = f
-            else:
-                hi = x
-                fhi = f
-            new = x - f / df if df > 0.0 else (x + reach if f <= 0.0 else x - reach)
-            if hi == np.inf or lo == -np.inf:  # one side unknown: a bounded step towards it
-                if new > x + reach:
-                    new = x + reach
-                elif new < x - reach:
-                    new = x - reach
-                if not (new >= lo and new <= hi):
-                    new = x + reach if f <= 0.0 else x - reach
-                reach *= 2.0
-            elif not (new >= lo and new <= hi):  # outside the bracket (across a kink): secant, or halve
-                den = fhi - flo
-                new = (lo * fhi - hi * flo) / den if den > 0.0 else 0.5 * (lo + hi)
-                if not (new > lo and new < hi):
-                    new = 0.5 * (lo + hi)
-            done = abs(new - x) <= 2e-15 * abs(x) or hi - lo <= 4e-15 * abs(x)
-            x = new
-            if done:
-                break
-        q, dq, m, dm, dm_dp, dm_dc, lat = _face_flux(kind, x, p, fluid, water, water_latent)
-        out[i, TS] = x
-        out[i, Q] = q
-        out[i, DQ] = dq
-        out[i, M] = m
-        out[i, DM] = dm
-        out[i, DM_DP] = dm_dp
-        out[i, DM_DC] = dm_dc
-        out[i, LATENT] = lat
+        x = _solve_face(kinds[i], params[i], kappa[i], tf, guess[i] if guess[i] > 0.0 else tf, fluid, water,
+                        water_latent)
+        _store(i, kinds[i], x, params[i], fluid, water, water_latent, out)
+
+
+@jit
+def solve_boundary_faces(kinds, params, faces, kappa, t_foot, guess, fluid, water, water_latent, t_s, q,
+                         dq_dtp, g1, terms):
+    """``solve_surfaces`` on the boundary faces ``faces`` (n,), gathering and scattering in place:
+    kappa, t_foot, guess (n_boundary,) (guess empty: start at t_foot); writes t_s, the heat flux
+    into the body q = kappa (T_s - T_foot), dq/dT_P = kappa g1 / (kappa - g1), g1 = dq/dT_s
+    (n_boundary,) and the rows of terms (n_boundary, OUTPUTS) at ``faces``."""
+    for i in range(faces.shape[0]):
+        b = faces[i]
+        kp = kappa[b]
+        tf = t_foot[b]
+        x0 = tf
+        if guess.shape[0] > 0 and guess[b] > 0.0:
+            x0 = guess[b]
+        x = _solve_face(kinds[i], params[i], kp, tf, x0, fluid, water, water_latent)
+        _store(b, kinds[i], x, params[i], fluid, water, water_latent, terms)
+        d = terms[b, DQ]
+        t_s[b] = x
+        g1[b] = d
+        q[b] = kp * (x - tf)
+        dq_dtp[b] = kp * d / (kp - d)

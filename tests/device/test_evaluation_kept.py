@@ -119,3 +119,40 @@ def test_kept_evaluations_are_not_overwritten(head, whole):
         scale = np.abs(first.boundary_heat).max()
         np.testing.assert_allclose(again.rate[: problem.n_cells], first.rate[: problem.n_cells], rtol=0,
                                    atol=1e-11 * scale)
+
+
+def test_boundary_kernel_matches_the_face_kernel(whole):
+    """kernels.surfaces.solve_boundary_faces (gathers and scatters on the boundary) against
+    solve_surfaces on the gathered faces (itself checked against the terms' NumPy heat_flux in
+    test_surface_kernel.py), from a cold start and from a guess."""
+    from fvsolver.conduction import _compiled_surfaces
+    from fvsolver.kernels import surfaces as ks
+
+    problem, y = whole
+    c, mesh = problem.conduction, problem.mesh
+    compiled = c._compiled or _compiled_surfaces(c._every_flux_group, mesh.n_boundary)
+    if compiled is None:  # NUMBA_DISABLE_JIT: the terms' NumPy twins are solved instead
+        pytest.skip("the compiled surface solve is off under NUMBA_DISABLE_JIT")
+    ctx = problem.context(y)
+    T = y[: problem.n_cells]
+    kappa = c.conductivity(T, ctx)[mesh.boundary_cell] / c.stencil.boundary_distance
+    t_foot = T[mesh.boundary_cell]
+    params = compiled.parameters(mesh.boundary_centres, ctx)
+    faces = compiled.faces
+    for guess in (np.zeros(0), t_foot + 0.3):
+        nb = mesh.n_boundary
+        t_s, q, dq, g1 = t_foot.copy(), np.zeros(nb), np.zeros(nb), np.zeros(nb)
+        terms = np.full((nb, ks.OUTPUTS), np.nan)
+        ks.solve_boundary_faces(compiled.kinds, params, faces, kappa, t_foot, guess, compiled.fluid,
+                                compiled.water, compiled.water_latent, t_s, q, dq, g1, terms)
+        out = np.empty((faces.size, ks.OUTPUTS))
+        start = np.zeros(faces.size) if guess.size == 0 else guess[faces]
+        ks.solve_surfaces(compiled.kinds, params, kappa[faces].copy(), t_foot[faces].copy(), start,
+                          compiled.fluid, compiled.water, compiled.water_latent, out)
+        np.testing.assert_array_equal(terms[faces], out)
+        np.testing.assert_array_equal(t_s[faces], out[:, ks.TS])
+        kf = kappa[faces]
+        np.testing.assert_array_equal(q[faces], kf * (out[:, ks.TS] - t_foot[faces]))
+        np.testing.assert_array_equal(dq[faces], kf * out[:, ks.DQ] / (kf - out[:, ks.DQ]))
+        others = np.setdiff1d(np.arange(nb), faces)
+        assert np.all(np.isnan(terms[others])) and np.all(q[others] == 0.0)
