@@ -77,20 +77,20 @@ class SphereTransfer:
         """t_surf (K) clipped into [t_low, t_high]."""
         return min(max(t_surf, self.t_low), self.t_high)
 
+    def _compiled(self, t_surf: float, step: float) -> tuple[float, float, float, float]:
+        return kt.transfer_coefficients(self.diameter, t_surf, self.air_temperature, self.pressure, self.air_speed,
+                                        self._code, self.h_given, self._lewis, step)
+
     def h(self, t_surf: float) -> float:
         """h (W/(m2 K)) at a surface temperature t_surf (K) already clipped."""
         if self.compiled:
-            if self._code == kt.GIVEN:
-                return self.h_given
-            return kt.sphere_coefficient(self.diameter, t_surf, self.air_temperature, self.pressure,
-                                         self.air_speed, self._code, 0.0, 0.0)
+            return self._compiled(t_surf, 0.0)[0]
         return float(self._numpy_h(t_surf))
 
     def coefficients(self, t_surf: float) -> tuple[float, float]:
         """(h W/(m2 K), h_m m/s) at a surface temperature t_surf (K) already clipped."""
         if self.compiled:
-            return kt.head_coefficients(self.diameter, t_surf, self.air_temperature, self.pressure,
-                                        self.air_speed, self._code, self.h_given, self._lewis)
+            return self._compiled(t_surf, 0.0)[:2]
         h = float(self._numpy_h(t_surf))
         t_film = 0.5 * (t_surf + self.air_temperature)
         return h, float(convection.mass_transfer_coefficient(h, t_film, self.pressure, self.lewis))
@@ -100,8 +100,7 @@ class SphereTransfer:
         at least that far inside [t_low, t_high]."""
         s = DERIVATIVE_STEP
         if self.compiled:
-            return kt.head_derivatives(self.diameter, t_surf, self.air_temperature, self.pressure,
-                                       self.air_speed, self._code, self.h_given, self._lewis, s)
+            return self._compiled(t_surf, s)[2:]
         hp, hmp = self.coefficients(t_surf + s)
         hm, hmm = self.coefficients(t_surf - s)
         return (hp - hm) / (2.0 * s), (hmp - hmm) / (2.0 * s)

@@ -134,9 +134,14 @@ def head_coefficients(d, ts, ta, p, u, mode, h_given, lewis):
 
 
 @jit
-def head_derivatives(d, ts, ta, p, u, mode, h_given, lewis, step):
-    """dh/dts and dh_m/dts by a central difference of +-step (K): second order, its error
-    O(step^2 h''') plus round-off O(eps h / step)."""
+def transfer_coefficients(d, ts, ta, p, u, mode, h_given, lewis, step):
+    """(h, h_m, dh/dts, dh_m/dts): h and h_m as ``head_coefficients`` gives them, the derivatives
+    by a central difference of +-step (K; second order, its error O(step^2 h''') plus round-off
+    O(eps h / step)), or zero when step <= 0. The one entry point the device calls: each compiled
+    entry point costs its own load from the cache when a process starts."""
+    h, hm = head_coefficients(d, ts, ta, p, u, mode, h_given, lewis)
+    if step <= 0.0:
+        return h, hm, 0.0, 0.0
     hp, hmp = head_coefficients(d, ts + step, ta, p, u, mode, h_given, lewis)
-    hm_, hmm = head_coefficients(d, ts - step, ta, p, u, mode, h_given, lewis)
-    return (hp - hm_) / (2.0 * step), (hmp - hmm) / (2.0 * step)
+    hn, hmn = head_coefficients(d, ts - step, ta, p, u, mode, h_given, lewis)
+    return h, hm, (hp - hn) / (2.0 * step), (hmp - hmn) / (2.0 * step)
