@@ -210,27 +210,38 @@ class ConductionProblem:
         fixed = self._fixed_per_cell.get(attribute)
         if fixed is None:
             fixed = self._fixed_per_cell[attribute] = self._split_fixed(attribute)
-        base, varying = fixed
+        base, varying, energy = fixed
         out = np.empty(self.n) if base is None else base.copy()
+        if energy is not None:  # Material.volumetric_energy of a constant c: rho (c (T - T_ref))
+            cells, rho, c = energy
+            out[cells] = rho * (c * (T[cells] - REFERENCE_TEMPERATURE))
         for m, cells in varying:
             out[cells] = getattr(m, attribute)(T[cells], context)
         return out
 
     def _split_fixed(self, attribute: str):
         """(values of the materials whose property is one constant, filled once, or None; the
-        (material, cells) pairs left to evaluate at every call)."""
-        constant = {"conductivity_at": "conductivity", "volumetric_heat_capacity": "heat_capacity"}.get(attribute)
+        (material, cells) pairs left to evaluate at every call; for the stored energy, the cells
+        of constant-c materials with their rho and c, or None)."""
         pairs = list(zip(self.materials, self._cells))
-        if constant is None:
-            return None, pairs
-        is_fixed = [not m.context_dependent and getattr(m, constant).is_constant for m, _ in pairs]
+        # the property behind each attribute (the stored energy is the heat capacity's integral)
+        prop = {"conductivity_at": "conductivity", "volumetric_heat_capacity": "heat_capacity",
+                "volumetric_energy": "heat_capacity"}.get(attribute)
+        is_fixed = [prop is not None and type(m) is Material and getattr(m, prop).is_constant for m, _ in pairs]
         if not any(is_fixed):
-            return None, pairs
+            return None, pairs, None
+        left = [pair for pair, f in zip(pairs, is_fixed) if not f]
+        if attribute == "volumetric_energy":
+            chosen = [(m, cells) for (m, cells), f in zip(pairs, is_fixed) if f]
+            cells = np.concatenate([c for _, c in chosen])
+            rho = np.concatenate([np.full(c.size, m.density) for m, c in chosen])
+            c = np.concatenate([np.full(c.size, m.heat_capacity.coefficients[0]) for m, c in chosen])
+            return None, left, (cells, rho, c)
         base = np.zeros(self.n)
         for (m, cells), f in zip(pairs, is_fixed):
             if f:
                 base[cells] = getattr(m, attribute)(np.full(cells.size, REFERENCE_TEMPERATURE), None)
-        return base, [pair for pair, f in zip(pairs, is_fixed) if not f]
+        return base, left, None
 
     def conductivity(self, T: np.ndarray, context=None) -> np.ndarray:
         """(n_cells,) W/(m K)."""
