@@ -60,9 +60,19 @@ class PorousCap:
         last = self.__dict__.get("_last")
         if last is not None and last[0] == s:
             return last[1], last[2]
-        k = float(porous.effective_conductivity(self.porosity, s, self.fibre_conductivity, WATER_CONDUCTIVITY,
-                                                self._air_conductivity, self.model))
-        rho_c = self.volumetric_heat_at(s)
+        if last is None or not 0.0 <= s <= 1.0:
+            # the checked functions: the first time (they validate the fixed inputs) and for a NaN
+            k = float(porous.effective_conductivity(self.porosity, s, self.fibre_conductivity, WATER_CONDUCTIVITY,
+                                                    self._air_conductivity, self.model))
+            rho_c = self.volumetric_heat_at(s)
+        else:
+            # their operations on plain floats (the inputs were validated on the first call)
+            phi = self.porosity
+            v_f, v_w, v_a = 1.0 - phi, phi * s, phi * (1.0 - s)
+            k = float(porous.mixture_conductivity((v_f, v_w, v_a), (self.fibre_conductivity, WATER_CONDUCTIVITY,
+                                                                    self._air_conductivity), self.model))
+            rho_c = (v_f * (self.fibre_density * self.fibre_heat_capacity) + v_w * self.water_volumetric_heat
+                     + v_a * AIR_VOLUMETRIC_HEAT)
         self.__dict__["_last"] = (s, k, rho_c)  # a cache, not a field: the dataclass stays frozen
         return k, rho_c
 

@@ -156,3 +156,23 @@ def test_boundary_kernel_matches_the_face_kernel(whole):
         np.testing.assert_array_equal(dq[faces], kf * out[:, ks.DQ] / (kf - out[:, ks.DQ]))
         others = np.setdiff1d(np.arange(nb), faces)
         assert np.all(np.isnan(terms[others])) and np.all(q[others] == 0.0)
+
+
+@pytest.mark.parametrize("model", ["parallel", "series", "maxwell_eucken", "emt"])
+def test_cap_properties_match_the_checked_functions(model):
+    """The porous cap's k and rho c on plain floats (after a first checked call) are the checked
+    property functions' numbers bit for bit; a NaN saturation is still refused."""
+    from fvsolver.device.cap import AIR_VOLUMETRIC_HEAT, WATER_CONDUCTIVITY, PorousCap
+    from fvsolver.errors import PropertyError
+
+    cap = PorousCap("cap", 0.85, 1300.0, 0.2, 1700.0, model)
+    for s in (1.0, 0.0, 0.37, 0.5, 0.999, 1.7, -0.2):
+        k, rho_c = cap._properties({"cap": {"saturation": s}})
+        clipped = min(max(s, 0.0), 1.0)
+        assert k == float(porous.effective_conductivity(0.85, clipped, 0.2, WATER_CONDUCTIVITY,
+                                                        cap._air_conductivity, model))
+        assert rho_c == float(porous.effective_volumetric_heat_capacity(0.85, clipped, 1300.0 * 1700.0,
+                                                                        cap.water_volumetric_heat,
+                                                                        AIR_VOLUMETRIC_HEAT))
+    with pytest.raises(PropertyError, match="saturation"):
+        cap._properties({"cap": {"saturation": float("nan")}})
