@@ -49,8 +49,11 @@ def water_constants() -> tuple[np.ndarray, np.ndarray]:
 def _ppds12(t, tc, c0, c1, c2, c3, c4, r_tc, m):
     """Latent heat (J/kg) and its T-derivative, PPDS eq. 12."""
     tau = 1.0 - t / tc
-    lat = r_tc * (c0 * tau ** (1 / 3) + c1 * tau ** (2 / 3) + c2 * tau + c3 * tau**2 + c4 * tau**6) / m
-    dtau = (c0 / 3.0 * tau ** (-2 / 3) + 2.0 * c1 / 3.0 * tau ** (-1 / 3) + c2 + 2.0 * c3 * tau
+    # one fractional power: tau^(2/3), tau^(-1/3) and tau^(-2/3) follow from tau^(1/3) (round-off apart)
+    r1 = tau ** (1 / 3)
+    r2 = r1 * r1
+    lat = r_tc * (c0 * r1 + c1 * r2 + c2 * tau + c3 * tau**2 + c4 * tau**6) / m
+    dtau = (c0 / 3.0 / r2 + 2.0 * c1 / 3.0 / r1 + c2 + 2.0 * c3 * tau
             + 6.0 * c4 * tau**5)
     return lat, -r_tc * dtau / (m * tc)
 
@@ -80,8 +83,11 @@ def _face_flux(kind, ts, p, fl, water, wl):
         t = min(max(ts, fl[T_LOW]), fl[T_HIGH])
         tc = fl[WAGNER_TC]
         tau = 1.0 - t / tc
-        f = fl[WA] * tau + fl[WB] * tau**1.5 + fl[WC] * tau**2.5 + fl[WD] * tau**5
-        df = fl[WA] + 1.5 * fl[WB] * tau**0.5 + 2.5 * fl[WC] * tau**1.5 + 5.0 * fl[WD] * tau**4
+        # the half-integer powers from one square root (round-off apart from tau**1.5, tau**2.5)
+        sq = np.sqrt(tau)
+        t15 = tau * sq
+        f = fl[WA] * tau + fl[WB] * t15 + fl[WC] * (tau * t15) + fl[WD] * tau**5
+        df = fl[WA] + 1.5 * fl[WB] * sq + 2.5 * fl[WC] * t15 + 5.0 * fl[WD] * tau**4
         ps = fl[WAGNER_PC] * np.exp(f * tc / t)
         tr = t / tc
         dps = ps * (-(df * tr + f) / (tc * tr**2))
