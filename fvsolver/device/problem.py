@@ -39,7 +39,7 @@ from fvsolver.device.surfaces import CondensingWall, EvaporativeCap, RoomSurface
 from fvsolver.device.transfer import SphereTransfer
 from fvsolver.kernels import surfaces as ks
 from fvsolver.linear import Assembler, LowRankUpdate
-from fvsolver.properties import convection, moist_air, porous
+from fvsolver.properties import moist_air, porous
 from fvsolver.properties.fluids import UNIVERSAL_GAS_CONSTANT
 
 CAP_PATCHES = ("cap_outer", "cap_edge")
@@ -337,7 +337,10 @@ class DeviceProblem:
         # porous.drying_rate_factor of the saturation clipped to [0, 1], on one number (its
         # saturations were checked at set-up)
         s_r, width = self._wet_slope
-        wet = min(max((min(max(s, 0.0), 1.0) - s_r) / width, 0.0), 1.0)
+        clipped = min(max(s, 0.0), 1.0)
+        if clipped != clipped:  # NaN: the checked function refuses it with its message
+            porous.drying_rate_factor(clipped, s_r + width, s_r)
+        wet = min(max((clipped - s_r) / width, 0.0), 1.0)
         t_mean = float(T[self._outer_cells_of_faces] @ self._outer_weights)
         transfer = self.head_transfer
         h, h_m = transfer.coefficients(transfer.clip(t_mean))
