@@ -227,14 +227,30 @@ def _execute_in_worker(base: tuple, changes: dict, run_dir, overwrite: bool, plo
 
 def _estimated_cost(variant: Case) -> float:
     """A run's relative cost before it runs: cells times the fewest steps it can take (the
-    size estimate of :mod:`fvsolver.case.limits`); 0 when it cannot be estimated."""
+    size estimate of :mod:`fvsolver.case.limits`), for a device over the room's wet-bulb
+    depression (the evaporation that drives the head falls with it, and the time to the target
+    and the period grow as its inverse: a humid room's run is the long one); 0 when it cannot
+    be estimated."""
     from fvsolver.case.limits import estimate
 
     try:
         e = estimate(variant.data)
+        cost = float(e.cells) * float(max(e.steps, 1))
+        room = variant.data.get("room")
+        if room is not None:
+            from fvsolver.properties.moist_air import wet_bulb_temperature
+
+            t = float(room["air_temperature"])
+            depression = t - float(wet_bulb_temperature(t, float(room["relative_humidity"]), float(room["pressure"])))
+            cost /= max(depression, WET_BULB_FLOOR)
     except Exception:  # noqa: BLE001 - only the order of the runs depends on it
         return 0.0
-    return float(e.cells) * float(max(e.steps, 1))
+    return cost
+
+
+# K: a depression below this counts as this (a saturated room's run stops on its stall, it does not
+# run forever)
+WET_BULB_FLOOR = 0.5
 
 
 @contextlib.contextmanager
