@@ -83,11 +83,8 @@ def _face_flux(kind, ts, p, fl, water, wl):
         t = min(max(ts, fl[T_LOW]), fl[T_HIGH])
         tc = fl[WAGNER_TC]
         tau = 1.0 - t / tc
-        # the half-integer powers from one square root (round-off apart from tau**1.5, tau**2.5)
-        sq = np.sqrt(tau)
-        t15 = tau * sq
-        f = fl[WA] * tau + fl[WB] * t15 + fl[WC] * (tau * t15) + fl[WD] * tau**5
-        df = fl[WA] + 1.5 * fl[WB] * sq + 2.5 * fl[WC] * t15 + 5.0 * fl[WD] * tau**4
+        f = fl[WA] * tau + fl[WB] * tau**1.5 + fl[WC] * tau**2.5 + fl[WD] * tau**5
+        df = fl[WA] + 1.5 * fl[WB] * tau**0.5 + 2.5 * fl[WC] * tau**1.5 + 5.0 * fl[WD] * tau**4
         ps = fl[WAGNER_PC] * np.exp(f * tc / t)
         tr = t / tc
         dps = ps * (-(df * tr + f) / (tc * tr**2))
