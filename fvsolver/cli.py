@@ -2,6 +2,7 @@
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 import traceback
 from pathlib import Path
@@ -310,12 +311,22 @@ class ProgressBar:
         sys.stderr.write("\n")
 
 
+# up to this many cells (the limits' estimate) `check` runs the kernels as Python
+INTERPRETED_CHECK_CELLS = 20_000
+
+
 def _check(args) -> int:
     from fvsolver.case import load_case
 
     from fvsolver.case.limits import estimate
 
     case = load_case(args.case)  # a case-file error is reported before the solver is imported
+    if args.program and estimate(case.data).cells <= INTERPRETED_CHECK_CELLS and "numba" not in sys.modules:
+        # one set-up and one evaluation: the kernels' Python (tested equal to the compiled code) is
+        # quicker than loading their compiled code from numba's cache (about 1 s of the check at
+        # the demo's size); a user's own NUMBA_DISABLE_JIT setting is kept. Only in a process of its
+        # own: the setting holds for the whole process once numba is imported
+        os.environ.setdefault("NUMBA_DISABLE_JIT", "1")
     from fvsolver.case.setup_check import build_checked
 
     build_checked(case)
@@ -387,7 +398,10 @@ def _new(args) -> int:
 
 
 def main(argv: list[str] | None = None) -> int:
+    """The command line; ``argv`` None: this process's own arguments (a program of its own, which
+    may choose process-wide settings such as how the kernels run)."""
     args = _parser().parse_args(argv)
+    args.program = argv is None
     handler = {"run": _run, "sweep": _sweep, "compare": _compare, "check": _check, "mesh": _mesh,
                "verify": _verify, "revolve": _revolve, "keys": _keys, "new": _new,
                **study_handlers(lambda a: lambda text: _say(a, text))}[args.command]

@@ -76,3 +76,28 @@ def test_the_helper_draws_the_same_png_and_a_dead_helper_is_drawn_here(tmp_path)
     assert here[:8] == b"\x89PNG\r\n\x1a\n"
     assert (tmp_path / "helper.png").read_bytes() == here
     assert (tmp_path / "after.png").read_bytes() == here
+
+
+def _check_in_a_process(case: Path) -> tuple[int, str]:
+    code = ("import sys; from fvsolver.cli import main; sys.argv = ['fvsolver', 'check', sys.argv[1], '-q']; "
+            "rc = main(); from fvsolver import kernels; print(rc, not kernels.COMPILED)")
+    done = subprocess.run([sys.executable, "-c", code, str(case)], capture_output=True, text=True,
+                          env={k: v for k, v in __import__("os").environ.items() if k != "NUMBA_DISABLE_JIT"})
+    return done.returncode, done.stdout.strip()
+
+
+def test_check_runs_the_kernels_as_python_up_to_its_size_and_compiled_beyond(tmp_path):
+    """`fvsolver check` sets up and evaluates once: at the demo's size the kernels run as their
+    Python (loading the compiled code from numba's cache would cost more); a case estimated above
+    INTERPRETED_CHECK_CELLS runs them compiled. Both say the case is valid."""
+    from fvsolver.cli import INTERPRETED_CHECK_CELLS
+
+    assert _check_in_a_process(ROOT / "cases" / "demo.toml") == (0, "0 True")
+    big = tmp_path / "big.toml"
+    text = (ROOT / "cases" / "demo.toml").read_text()
+    big.write_text(text.replace("[mesh]\n", "[mesh]\nrefinement = 8\n", 1))
+    from fvsolver.case import load_case
+    from fvsolver.case.limits import estimate
+
+    assert estimate(load_case(big).data).cells > INTERPRETED_CHECK_CELLS
+    assert _check_in_a_process(big) == (0, "0 False")

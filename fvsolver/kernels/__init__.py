@@ -5,16 +5,26 @@ against; the suite also runs with ``NUMBA_DISABLE_JIT=1``.
 """
 from __future__ import annotations
 
-import numba
+import os
+import sys
 
 # One set of flags for the whole wing.  cache=True keeps the compiled kernels on disk;
 # every kernel and helper lives in one module so the cache cannot go stale across modules.
 JIT_OPTIONS = dict(cache=True, nogil=True, fastmath=False, boundscheck=False)
 
-# False under NUMBA_DISABLE_JIT=1: callers that loop over faces in a kernel take their NumPy path
-COMPILED = not numba.config.DISABLE_JIT
+if "numba" not in sys.modules and os.environ.get("NUMBA_DISABLE_JIT", "0").strip() not in ("", "0"):
+    # the kernels run as Python: numba (about 0.3 s to import) is not needed for that
+    COMPILED = False
 
+    def jit(function):
+        """``function`` itself (the JIT is switched off)."""
+        return function
+else:
+    import numba
 
-def jit(function):
-    """Compile ``function`` with the wing's flags."""
-    return numba.njit(**JIT_OPTIONS)(function)
+    # False under NUMBA_DISABLE_JIT=1: callers that loop over faces in a kernel take their NumPy path
+    COMPILED = not numba.config.DISABLE_JIT
+
+    def jit(function):
+        """Compile ``function`` with the wing's flags."""
+        return numba.njit(**JIT_OPTIONS)(function)
