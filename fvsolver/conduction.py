@@ -10,7 +10,7 @@ The stepper advances ``capacity`` (m = rho V e) against ``evaluate`` (the right-
 from __future__ import annotations
 
 from collections.abc import Callable
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from functools import cached_property
 
 import numpy as np
@@ -172,6 +172,7 @@ class ConductionProblem:
         self._constant_k = all(not m.context_dependent and m.conductivity.is_constant for m in self.materials)
         self._constant_c = all(not m.context_dependent and m.heat_capacity.is_constant for m in self.materials)
         self._cells = [np.flatnonzero(mesh.cell_material == i) for i in range(len(self.materials))]
+        self._fixed_per_cell = {}
         self._boundary_cells = np.unique(mesh.boundary_cell)
         self._surface_guess: np.ndarray | None = None
         self._correction_cache = None
@@ -189,7 +190,7 @@ class ConductionProblem:
         ]
         self._every_flux_group = self._flux_groups
         self._compiled = None
-        self._compiled_out = None
+        self._g_last = self._kf_last = None
         self.compile_surfaces(True)
         g = np.empty(mesh.n_faces)
         if self._constant_k:
@@ -207,10 +208,41 @@ class ConductionProblem:
 
     # -- properties -------------------------------------------------------------------------
     def _per_cell(self, T: np.ndarray, attribute: str, context) -> np.ndarray:
-        out = np.empty(self.n)
-        for m, cells in zip(self.materials, self._cells):
+        fixed = self._fixed_per_cell.get(attribute)
+        if fixed is None:
+            fixed = self._fixed_per_cell[attribute] = self._split_fixed(attribute)
+        base, varying, energy = fixed
+        out = np.empty(self.n) if base is None else base.copy()
+        if energy is not None:  # Material.volumetric_energy of a constant c: rho (c (T - T_ref))
+            cells, rho, c = energy
+            out[cells] = rho * (c * (T[cells] - REFERENCE_TEMPERATURE))
+        for m, cells in varying:
             out[cells] = getattr(m, attribute)(T[cells], context)
         return out
+
+    def _split_fixed(self, attribute: str):
+        """(values of the materials whose property is one constant, filled once, or None; the
+        (material, cells) pairs left to evaluate at every call; for the stored energy, the cells
+        of constant-c materials with their rho and c, or None)."""
+        pairs = list(zip(self.materials, self._cells))
+        # the property behind each attribute (the stored energy is the heat capacity's integral)
+        prop = {"conductivity_at": "conductivity", "volumetric_heat_capacity": "heat_capacity",
+                "volumetric_energy": "heat_capacity"}.get(attribute)
+        is_fixed = [prop is not None and type(m) is Material and getattr(m, prop).is_constant for m, _ in pairs]
+        if not any(is_fixed):
+            return None, pairs, None
+        left = [pair for pair, f in zip(pairs, is_fixed) if not f]
+        if attribute == "volumetric_energy":
+            chosen = [(m, cells) for (m, cells), f in zip(pairs, is_fixed) if f]
+            cells = np.concatenate([c for _, c in chosen])
+            rho = np.concatenate([np.full(c.size, m.density) for m, c in chosen])
+            c = np.concatenate([np.full(c.size, m.heat_capacity.coefficients[0]) for m, c in chosen])
+            return None, left, (cells, rho, c)
+        base = np.zeros(self.n)
+        for (m, cells), f in zip(pairs, is_fixed):
+            if f:
+                base[cells] = getattr(m, attribute)(np.full(cells.size, REFERENCE_TEMPERATURE), None)
+        return base, left, None
 
     def conductivity(self, T: np.ndarray, context=None) -> np.ndarray:
         """(n_cells,) W/(m K)."""
@@ -258,52 +290,37 @@ class ConductionProblem:
         return (v * self._per_cell(T, "volumetric_energy", context),
                 v * self._per_cell(T, "volumetric_heat_capacity", context))
 
-    def _surface(self, T, time, grad, k, context=None, reuse=None):
-        """Surface temperatures, heat fluxes and their T_P derivatives on every boundary face."""
+    def _surface(self, T, time, k, context=None):
+        """Surface temperatures, heat fluxes and their T_P derivatives on every boundary face, at
+        the cells' own temperatures (the fixed-temperature faces' offset correction, which needs
+        the gradients, is ``_offset_correction``)."""
         mesh, st = self.mesh, self.stencil
         bc = mesh.boundary_cell
         kappa = k[bc] / st.boundary_distance
         # the tangential offset (non-orthogonal boundary cells) is corrected on fixed-temperature
         # faces; on flux faces the surface balance is taken at the cell's own temperature, so the
         # surface solve never waits on the gradients (first order in the offset there)
-        t_foot = T[bc].copy()
+        t_foot = T[bc]
         t_s = t_foot.copy()
-        q = np.zeros(mesh.n_boundary)
-        dq_dtp = np.zeros(mesh.n_boundary)
-        g1_all = np.zeros(mesh.n_boundary)
+        nb = t_s.size
+        q = np.zeros(nb)
+        dq_dtp = np.zeros(nb)
+        g1_all = np.zeros(nb)
         for cond, faces in self._dirichlet_groups:
             t_s[faces] = _evaluate(cond.terms[0].temperature, mesh.boundary_centres[faces], time)
-            foot = t_foot[faces]
-            if grad is not None:
-                cells = bc[faces]
-                foot = foot + grad[cells, 0] * st.boundary_offset[faces, 0] + grad[cells, 1] * st.boundary_offset[faces, 1]
-            q[faces] = kappa[faces] * (t_s[faces] - foot)
+            q[faces] = kappa[faces] * (t_s[faces] - t_foot[faces])
             dq_dtp[faces] = -kappa[faces]
         surface_terms = None
         if self._compiled is not None:
-            # every coupled face in one compiled call (its outputs kept for the second pass of a
-            # corrected evaluation, which reuses the same surface temperatures)
-            faces = self._compiled.faces
-            if reuse is None:
-                guess = None if self._surface_guess is None else self._surface_guess[faces]
-                self._compiled_out = self._compiled.solve(kappa[faces], t_foot[faces], guess, time,
-                                                          mesh.boundary_centres, context)
-            out = self._compiled_out
-            kf, tf = kappa[faces], t_foot[faces]
-            ts, g1 = out[:, _ks.TS], out[:, _ks.DQ]
-            t_s[faces] = ts
-            g1_all[faces] = g1
-            q[faces] = kf * (ts - tf)
-            dq_dtp[faces] = kf * g1 / (kf - g1)
-            surface_terms = np.full((mesh.n_boundary, _ks.OUTPUTS), np.nan)
-            surface_terms[faces] = out
+            # every coupled face in one compiled call, which writes its faces' entries in place
+            surface_terms = np.full((nb, _ks.OUTPUTS), np.nan)
+            self._compiled.solve_into(kappa, t_foot, self._surface_guess, mesh.boundary_centres, context,
+                                      t_s, q, dq_dtp, g1_all, surface_terms)
         for cond, faces in self._flux_groups:
             if not cond.terms:
                 continue
             kf, tf, xc = kappa[faces], t_foot[faces], mesh.boundary_centres[faces]
-            if reuse is not None:
-                ts = reuse[faces]
-            elif all(isinstance(t, (HeatFlux, Convection)) for t in cond.terms):
+            if all(isinstance(t, (HeatFlux, Convection)) for t in cond.terms):
                 # affine in T_s: one Newton step from anywhere is exact
                 g0, g1 = _term_sum(cond.terms, tf, time, xc, faces, context)
                 ts = tf + g0 / (kf - g1)
@@ -318,6 +335,16 @@ class ConductionProblem:
         self._last_surface = (kappa, g1_all, surface_terms)
         return t_s, q, dq_dtp
 
+    def _offset_correction(self, T, grad, t_s, q) -> None:
+        """The fixed-temperature faces' heat flux from the foot of the face normal through the cell
+        centre (T_P + grad T . offset), in place on q."""
+        mesh, st = self.mesh, self.stencil
+        kappa = self._last_surface[0]
+        for _, faces in self._dirichlet_groups:
+            cells = mesh.boundary_cell[faces]
+            foot = T[cells] + grad[cells, 0] * st.boundary_offset[faces, 0] + grad[cells, 1] * st.boundary_offset[faces, 1]
+            q[faces] = kappa[faces] * (t_s[faces] - foot)
+
     def evaluate(self, T: np.ndarray, time: float, context=None) -> Evaluation:
         """Heat rate into every cell at temperature ``T`` (K) and ``time`` (s).
 
@@ -326,29 +353,22 @@ class ConductionProblem:
         """
         mesh, st = self.mesh, self.stencil
         k = self.conductivity(T, context)
-        if self._g_constant is not None:
-            g = self._g_constant
-        else:
-            g = np.empty(mesh.n_faces)
-            kern.face_conductance(k, mesh.owner, mesh.neighbour, st.dist_owner, st.dist_neighbour, st.geometry, g)
+        g = self._face_conductance(k)
         rate = np.zeros(self.n)
         kern.face_flux_sum(T, mesh.owner, mesh.neighbour, g, rate)
-        grad = None
+        # surface temperatures first (they do not need the gradients), then, with the correction,
+        # the gradients, the fixed-temperature faces' offset correction and the face corrections
+        t_s, q, dq = self._surface(T, time, k, context)
         if self.correct:
-            # surface temperatures first (they do not need the gradients), then the gradients,
-            # then the fixed-temperature faces' offset correction and the face corrections
-            t_s, _, _ = self._surface(T, time, None, k, context)
             grad = np.zeros((self.n, 2))
             kern.cell_gradients(T, mesh.owner, mesh.neighbour, st.lsq_owner, st.lsq_neighbour,
                                 mesh.boundary_cell, st.lsq_boundary, t_s, grad)
-            t_s, q, dq = self._surface(T, time, grad, k, context, reuse=t_s)
+            self._offset_correction(T, grad, t_s, q)
             self._surface_guess = t_s
-            kf = g / st.geometry
-            kern.correction_flux_sum(grad, mesh.owner, mesh.neighbour, kf, st.weight_owner, st.tangent, rate)
-        else:
-            t_s, q, dq = self._surface(T, time, None, k, context)
-            if not self.boundary.linear:
-                self._surface_guess = t_s
+            kern.correction_flux_sum(grad, mesh.owner, mesh.neighbour, self._face_k(g), st.weight_owner,
+                                     st.tangent, rate)
+        elif not self.boundary.linear:
+            self._surface_guess = t_s
         area = mesh.boundary_areas
         boundary_heat = area * q
         rate += np.bincount(mesh.boundary_cell, boundary_heat, self.n)
@@ -362,6 +382,28 @@ class ConductionProblem:
             source_heat += float(power.sum())
         kappa, g1, surface_terms = self._last_surface
         return Evaluation(rate, bjac, g, t_s, boundary_heat, source_heat, kappa, g1, surface_terms)
+
+    def _face_conductance(self, k: np.ndarray) -> np.ndarray:
+        """Two-point face conductances (W/K) of the conductivities k; the last pair is kept (the
+        conductivity follows only the cap's saturation, constant over most steps). The array
+        handed out is never written to, so evaluations that hold it stay valid."""
+        if self._g_constant is not None:
+            return self._g_constant
+        last = self._g_last
+        if last is not None and np.array_equal(last[0], k):
+            return last[1]
+        mesh, st = self.mesh, self.stencil
+        g = np.empty(mesh.n_faces)
+        kern.face_conductance(k, mesh.owner, mesh.neighbour, st.dist_owner, st.dist_neighbour, st.geometry, g)
+        self._g_last = (k.copy(), g)
+        return g
+
+    def _face_k(self, g: np.ndarray) -> np.ndarray:
+        """g / geometry, the face conductivities of the correction (kept with the g they came from)."""
+        kept = self._kf_last
+        if kept is None or kept[0] is not g:
+            kept = self._kf_last = (g, g / self.stencil.geometry)
+        return kept[1]
 
     def jacobian(self, alpha0: float, dt: float, dm: np.ndarray, ev: Evaluation) -> sp.csr_matrix:
         """J = alpha0 dm/dT - dt dF/dT (two-point part; the deferred correction is left out)."""
@@ -430,13 +472,39 @@ class _CompiledSurfaces:
     water: np.ndarray
     water_latent: np.ndarray
 
-    def solve(self, kappa, t_foot, guess, time, centres, context) -> np.ndarray:
-        params = np.concatenate([term.surface_parameters(f, centres[f], context) for term, f in self.groups])
-        out = np.empty((self.faces.size, _ks.OUTPUTS))
-        start = np.zeros(self.faces.size) if guess is None else np.ascontiguousarray(guess)
-        _ks.solve_surfaces(self.kinds, params, np.ascontiguousarray(kappa), np.ascontiguousarray(t_foot), start,
-                           self.fluid, self.water, self.water_latent, out)
-        return out
+    kept: list = field(default_factory=lambda: [None], compare=False)  # the parameter rows
+
+    def parameters(self, centres, context) -> np.ndarray:
+        """(n, PARAMETERS), every group's rows. The rows are kept: a term with
+        ``update_surface_parameters(rows, faces, context)`` has them filled once by its
+        ``surface_parameters`` and then rewrites only the columns its context sets, in place (the
+        kernel only reads them, and no evaluation keeps them)."""
+        rows = self.kept[0]
+        if rows is None:
+            rows = self.kept[0] = np.concatenate([term.surface_parameters(f, centres[f], context)
+                                                  for term, f in self.groups])
+            return rows
+        start = 0
+        for term, f in self.groups:
+            view = rows[start:start + f.size]
+            start += f.size
+            update = getattr(term, "update_surface_parameters", None)
+            if update is None:
+                view[:] = term.surface_parameters(f, centres[f], context)
+            else:
+                update(view, f, context)
+        return rows
+
+    def solve_into(self, kappa, t_foot, guess, centres, context, t_s, q, dq_dtp, g1, terms) -> None:
+        """Solve the coupled faces from the boundary-wide kappa, t_foot and guess (None: start at
+        t_foot), writing their entries of t_s, q, dq_dtp, g1 (n_boundary,) and terms (n_boundary,
+        OUTPUTS) in place (``kernels.surfaces.solve_boundary_faces``)."""
+        params = self.parameters(centres, context)
+        _ks.solve_boundary_faces(self.kinds, params, self.faces, kappa, t_foot, _NO_GUESS if guess is None else guess,
+                                 self.fluid, self.water, self.water_latent, t_s, q, dq_dtp, g1, terms)
+
+
+_NO_GUESS = np.zeros(0)
 
 
 def _compiled_surfaces(flux_groups, n_boundary: int):

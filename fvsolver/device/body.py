@@ -82,6 +82,10 @@ class PoolContact:
         p[:, 0], p[:, 1] = self.coefficient(centres, faces), context["pool"]["temperature"]
         return p
 
+    def update_surface_parameters(self, rows, faces, context) -> None:
+        """Rewrite, in place, the column of ``surface_parameters``' rows that the context sets."""
+        rows[:, 1] = context["pool"]["temperature"]
+
 
 @dataclass(frozen=True)
 class PoolGeometry:

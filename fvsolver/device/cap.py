@@ -2,6 +2,7 @@
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import cached_property
 
 import numpy as np
 
@@ -34,10 +35,14 @@ class PorousCap:
         if not 0.0 < self.porosity < 1.0:
             raise CaseError(f"cap.porosity: got {self.porosity!r}, expected a value in (0, 1) (felt: 0.8-0.95)")
 
-    @property
+    @cached_property
     def water_volumetric_heat(self) -> float:
         t = 293.15
         return float(water.liquid_density(t) * water.liquid_heat_capacity(t))
+
+    @cached_property
+    def _air_conductivity(self) -> float:
+        return float(air_thermal_conductivity(293.15))
 
     def _s(self, context) -> float:
         return 1.0 if context is None else float(context["cap"]["saturation"])
@@ -47,16 +52,38 @@ class PorousCap:
             self.porosity, saturation, self.fibre_density * self.fibre_heat_capacity,
             self.water_volumetric_heat, AIR_VOLUMETRIC_HEAT))
 
+    def _properties(self, context) -> tuple[float, float]:
+        """(k W/(m K), rho c J/(m3 K)) at the context's saturation clipped to [0, 1]; the last pair
+        is kept, as every evaluation of a step asks for the same saturation (constant while a
+        reservoir keeps the cap wet)."""
+        s = min(max(self._s(context), 0.0), 1.0)
+        last = self.__dict__.get("_last")
+        if last is not None and last[0] == s:
+            return last[1], last[2]
+        if last is None or not 0.0 <= s <= 1.0:
+            # the checked functions: the first time (they validate the fixed inputs) and for a NaN
+            k = float(porous.effective_conductivity(self.porosity, s, self.fibre_conductivity, WATER_CONDUCTIVITY,
+                                                    self._air_conductivity, self.model))
+            rho_c = self.volumetric_heat_at(s)
+        else:
+            # their operations on plain floats (the inputs were validated on the first call)
+            phi = self.porosity
+            v_f, v_w, v_a = 1.0 - phi, phi * s, phi * (1.0 - s)
+            k = float(porous.mixture_conductivity((v_f, v_w, v_a), (self.fibre_conductivity, WATER_CONDUCTIVITY,
+                                                                    self._air_conductivity), self.model))
+            rho_c = (v_f * (self.fibre_density * self.fibre_heat_capacity) + v_w * self.water_volumetric_heat
+                     + v_a * AIR_VOLUMETRIC_HEAT)
+        self.__dict__["_last"] = (s, k, rho_c)  # a cache, not a field: the dataclass stays frozen
+        return k, rho_c
+
     def conductivity_at(self, T: np.ndarray, context=None) -> np.ndarray:
-        k = porous.effective_conductivity(self.porosity, np.clip(self._s(context), 0.0, 1.0), self.fibre_conductivity,
-                                          WATER_CONDUCTIVITY, float(air_thermal_conductivity(293.15)), self.model)
-        return np.full(np.shape(T), float(k))
+        return np.full(np.shape(T), self._properties(context)[0])
 
     def volumetric_energy(self, T: np.ndarray, context=None) -> np.ndarray:
-        return self.volumetric_heat_at(np.clip(self._s(context), 0.0, 1.0)) * (np.asarray(T) - REFERENCE_TEMPERATURE)
+        return self._properties(context)[1] * (np.asarray(T) - REFERENCE_TEMPERATURE)
 
     def volumetric_heat_capacity(self, T: np.ndarray, context=None) -> np.ndarray:
-        return np.full(np.shape(T), self.volumetric_heat_at(np.clip(self._s(context), 0.0, 1.0)))
+        return np.full(np.shape(T), self._properties(context)[1])
 
     def denergy_dsaturation(self, T: np.ndarray) -> np.ndarray:
         """d(volumetric energy)/ds, J/m3."""

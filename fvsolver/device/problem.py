@@ -35,15 +35,18 @@ from fvsolver.device.body import PoolContact, wetted_fractions
 from fvsolver.device.spec import GRAVITY, DeviceSpec
 from fvsolver.materials import REFERENCE_TEMPERATURE
 from fvsolver.device.surfaces import CondensingWall, EvaporativeCap, RoomSurface, water_latent_heat
+from fvsolver.device.transfer import SphereTransfer
 from fvsolver.kernels import surfaces as ks
 from fvsolver.linear import KeptTriplets, LowRankUpdate
-from fvsolver.properties import convection, moist_air, porous
+from fvsolver.properties import moist_air, porous
 from fvsolver.properties.fluids import UNIVERSAL_GAS_CONSTANT
 
 CAP_PATCHES = ("cap_outer", "cap_edge")
 ROOM_PATCHES = ("glass_outer", "neck_outer")
 BODY_ROOM_PATCHES = ("body_outer",)
 POOL_PATCHES = ("body_inner", "dip_tube_outer", "tube_end")
+# the surface temperatures' clipping intervals of the correlations, K (iterates may stray)
+T_SURFACE_LOW, T_SURFACE_HIGH, T_BODY_HIGH = 274.0, 320.0, 390.0
 
 
 @dataclass
@@ -161,8 +164,32 @@ class DeviceProblem:
         self.cap_volume = float(mesh.cell_volumes[self.cap_cells].sum())
         self.pore_water_capacity = (self.cap_material.porosity * self.cap_volume
                                     * self.cap_material.water_volumetric_heat / spec.cap_water.water_heat_capacity)
+        # the water's sensible enthalpy's fixed factors (_water_sensible)
+        self._charge = spec.cap_water.mode == "charge"
+        self._cap_area = mesh.boundary_areas[self.cap_faces]
+        self._cap_cell_volumes = mesh.cell_volumes[self.cap_cells]
+        self._reservoir_share = self._cap_cell_volumes / self.cap_volume * spec.cap_water.water_heat_capacity
+        self._sensible_slope = self._cap_cell_volumes * self.cap_material.porosity * (
+            self.cap_material.water_volumetric_heat - 1.2 * 1006.0)
         self.inner_area = mesh.boundary_areas[self.inner]
         self.outer_diameter = spec.room.diameter
+        self._keep_means(mesh)
+        # the outside coefficients: the correlations' inputs are checked here, once, over the surface
+        # temperatures' clipping intervals (see fvsolver.device.transfer); the evaluations clip
+        self.head_transfer = SphereTransfer(room.diameter, room.air_temperature, room.pressure, room.air_speed,
+                                            room.convection, T_SURFACE_LOW, T_SURFACE_HIGH,
+                                            room.heat_transfer_coefficient or 0.0, room.lewis_number)
+        cw = spec.cap_water
+        porous.drying_rate_factor(1.0, cw.critical_saturation, cw.residual_saturation)  # refuses bad pairs now
+        self._wet_slope = (cw.residual_saturation, cw.critical_saturation - cw.residual_saturation)
+        if body is not None:
+            self.body_transfer = SphereTransfer(body.diameter, room.air_temperature, room.pressure, room.air_speed,
+                                                room.convection, T_SURFACE_LOW, T_SURFACE_HIGH,
+                                                room.heat_transfer_coefficient or 0.0, mass_transfer=False)
+            self.hot_transfer = tuple(("hot_air:" + patch, SphereTransfer(body.diameter, t_air, room.pressure, speed,
+                                                                          "forced", T_SURFACE_LOW, T_BODY_HIGH,
+                                                                          mass_transfer=False))
+                                      for patch, t_air, speed in body.hot_air)
         self.vapour_reference = spec.vapour.vapour_mass(spec.vapour.initial_temperature)
         self.tolerance_scale = self._tolerance_scale()
         # the Jacobian's kept assembly (three low-rank columns) and its constant pieces
@@ -239,8 +266,7 @@ class DeviceProblem:
         """Area-weighted mean temperature of the cells along the vapour space's walls."""
         if self.inner.size == 0:  # no condensing wall: the vapour keeps its initial temperature
             return self.spec.vapour.initial_temperature
-        cells = self.mesh.boundary_cell[self.inner]
-        return float(np.average(T[cells], weights=self.inner_area))
+        return float(T[self._inner_cells] @ self._inner_weights)
 
     def pressures(self, y: np.ndarray) -> dict:
         """Head and second-bulb pressures (Pa) and their difference."""
@@ -281,62 +307,67 @@ class DeviceProblem:
         self._context_cache = (y.copy(), self.tipped, ctx)
         return ctx
 
+    def _keep_means(self, mesh) -> None:
+        """The area-weighted means' cells and weights (each mean is one dot product)."""
+        def kept(faces):
+            area = mesh.boundary_areas[faces]
+            total = area.sum()
+            return mesh.boundary_cell[faces], (area / total if total > 0.0 else area)
+        self._inner_cells, self._inner_weights = kept(self.inner)
+        self._outer_cells_of_faces, self._outer_weights = kept(self.outer_faces)
+        if self.spec.body is not None:
+            self._body_cells, self._body_weights = kept(np.concatenate(
+                [mesh.patch_faces(p) for p in BODY_ROOM_PATCHES]))
+
     def _context(self, y: np.ndarray) -> dict:
-        T = y[: self.n_cells]
-        spec, room = self.spec, self.spec.room
-        s = self.saturation(y[self.i_w])
-        wet = float(porous.drying_rate_factor(np.clip(s, 0.0, 1.0), spec.cap_water.critical_saturation,
-                                              spec.cap_water.residual_saturation))
-        outer = self.outer_faces
-        t_mean = float(np.average(T[self.mesh.boundary_cell[outer]], weights=self.mesh.boundary_areas[outer]))
-        t_surf = float(np.clip(t_mean, 274.0, 320.0))  # the correlations' range; iterates may stray
-        h, h_m = self._transfer_coefficients(t_surf)
+        n = self.n_cells
+        T = y[:n]
+        s = self.saturation(float(y[self.i_w]))
+        # porous.drying_rate_factor of the saturation clipped to [0, 1], on one number (its
+        # saturations were checked at set-up)
+        s_r, width = self._wet_slope
+        clipped = min(max(s, 0.0), 1.0)
+        if clipped != clipped:  # NaN: the checked function refuses it with its message
+            porous.drying_rate_factor(clipped, s_r + width, s_r)
+        wet = min(max((clipped - s_r) / width, 0.0), 1.0)
+        t_mean = float(T[self._outer_cells_of_faces] @ self._outer_weights)
+        transfer = self.head_transfer
+        h, h_m = transfer.coefficients(transfer.clip(t_mean))
         inventory = np.zeros(self.mesh.n_boundary)
         inventory[self.inner] = y[self.i_c]
-        p = self.pressures(y)
+        # the head's vapour pressure and temperature, as pressures() gives them
+        t_v = self.vapour_temperature(T)
+        vap = self.spec.vapour
+        p_v = self.vapour_mass(y) * UNIVERSAL_GAS_CONSTANT * t_v / (vap.fluid.molar_mass * vap.volume)
         ctx = {"cap": {"h": h, "h_m": h_m, "wet_fraction": wet, "saturation": s, "surface_mean": t_mean},
                "room": {"h": h},
-               "vapour": {"pressure": p["head_vapour_pa"], "temperature": p["vapour_temperature_k"],
-                          "inventory": inventory}}
+               "vapour": {"pressure": p_v, "temperature": t_v, "inventory": inventory}}
         if self.body is not None:
             ctx.update(self._body_context(T, y))
         return ctx
 
     def _transfer_coefficients(self, t_surf: float) -> tuple[float, float]:
         """The head's outside convection coefficient h (W/(m2 K)) and the cap's mass-transfer
-        coefficient h_m (m/s) at the outer surface's mean temperature t_surf (K)."""
-        room = self.spec.room
-        if room.convection == "given":
-            h = room.heat_transfer_coefficient
-        else:
-            h = float(convection.sphere_convection(self.outer_diameter, t_surf, room.air_temperature,
-                                                   room.pressure, room.air_speed, room.convection).h)
-        t_film = 0.5 * (t_surf + room.air_temperature)
-        return h, float(convection.mass_transfer_coefficient(h, t_film, room.pressure, room.lewis_number))
+        coefficient h_m (m/s) at the outer surface's mean temperature t_surf (K), clipped into the
+        correlations' range."""
+        transfer = self.head_transfer
+        return transfer.coefficients(transfer.clip(t_surf))
 
     def _transfer_derivatives(self, t_mean: float, h: float, h_m: float) -> tuple[float, float]:
-        """dh/dt_surf and dh_m/dt_surf (a forward difference of 0.01 K from the context's h and h_m;
-        zero where t_surf is clipped)."""
-        if not 274.0 < t_mean < 320.0 - 0.01:
+        """dh/dt_surf and dh_m/dt_surf at the context's t_mean (a central difference of the compiled
+        coefficients, SphereTransfer.derivatives; zero where t_surf is clipped)."""
+        if not T_SURFACE_LOW < t_mean < T_SURFACE_HIGH - 0.01:
             return 0.0, 0.0
-        hp, hmp = self._transfer_coefficients(t_mean + 0.01)
-        return (hp - h) / 0.01, (hmp - h_m) / 0.01
+        return self.head_transfer.derivatives(t_mean)
 
     def _body_context(self, T: np.ndarray, y: np.ndarray) -> dict:
         """The pool's temperature and the body bulb's outside coefficients (room, warm air streams)."""
-        room, faces = self.spec.room, self.body_faces
-        t_surf = float(np.average(T[self.mesh.boundary_cell[faces]], weights=self.mesh.boundary_areas[faces]))
-        t_surf = float(np.clip(t_surf, 274.0, 390.0))  # the correlations' range; iterates may stray
-        d = self.body.diameter
-        if room.convection == "given":
-            h = room.heat_transfer_coefficient
-        else:
-            h = float(convection.sphere_convection(d, min(t_surf, 320.0), room.air_temperature, room.pressure,
-                                                   room.air_speed, room.convection).h)
+        t_surf = float(T[self._body_cells] @ self._body_weights)
+        t_surf = min(max(t_surf, T_SURFACE_LOW), T_BODY_HIGH)  # the correlations' range; iterates may stray
+        h = self.body_transfer.h(min(t_surf, T_SURFACE_HIGH))
         out = {"pool": {"temperature": float(y[self.i_tb])}, "body": {"h": h}}
-        for patch, t_air, speed in self.body.hot_air:
-            out["hot_air:" + patch] = {"h": float(convection.sphere_convection(d, t_surf, t_air, room.pressure,
-                                                                                speed, "forced").h)}
+        for key, transfer in self.hot_transfer:
+            out[key] = {"h": transfer.h(t_surf)}
         return out
 
     # -- the stepper's interface -------------------------------------------------------------------
@@ -376,22 +407,19 @@ class DeviceProblem:
         dout = np.zeros(self.n_cells)
         per_evaporation = np.zeros(self.n_cells)  # d out / d(evaporation_total)
         cells = self.cap_cells
-        v = self.mesh.cell_volumes[cells]
-        cw = self.spec.cap_water
-        if cw.mode == "charge":
+        v, t_cap = self._cap_cell_volumes, T[cells]
+        if self._charge:
             # water leaving cell P takes its share of the stored sensible energy with it
             ds_dt = -evaporation_total / self.pore_water_capacity
-            de_ds = self.cap_material.denergy_dsaturation(T[cells])
+            de_ds = self.cap_material.denergy_dsaturation(t_cap)
             out[cells] = v * de_ds * ds_dt
-            dout[cells] = v * self.cap_material.porosity * (
-                self.cap_material.water_volumetric_heat - 1.2 * 1006.0) * ds_dt
+            dout[cells] = self._sensible_slope * ds_dt
             per_evaporation[cells] = -v * de_ds / self.pore_water_capacity
         else:
             # the reservoir replaces what evaporates, with water at its own temperature
-            share = evaporation_total * v / self.cap_volume * cw.water_heat_capacity
-            out[cells] = share * (cw.reservoir_temperature - T[cells])
-            dout[cells] = -share
-            per_evaporation[cells] = v / self.cap_volume * cw.water_heat_capacity * (cw.reservoir_temperature - T[cells])
+            per_evaporation[cells] = self._reservoir_share * (self.spec.cap_water.reservoir_temperature - t_cap)
+            out[cells] = evaporation_total * per_evaporation[cells]
+            dout[cells] = -evaporation_total * self._reservoir_share
         self._per_evaporation = per_evaporation
         return out, dout
 
@@ -409,15 +437,14 @@ class DeviceProblem:
         else:
             j, dj_dt, dj_dp, dj_dc = self.wall_term.mass_flux(t_s[self.inner], self.inner, ctx)
             m_e, dme_dt = self.cap_term.mass_flux(t_s[self.cap_faces], ctx)
-        area_cap = mesh.boundary_areas[self.cap_faces]
-        evap_total = float(np.dot(area_cap, m_e))
+        evap_total = float(np.dot(self._cap_area, m_e))
         sensible, dsensible = self._water_sensible(T, evap_total, ctx)
         rate = np.zeros(self.n)
         rate[:n] = ev.rate + sensible
         aj = self.inner_area * j
         rate[self.i_mv] = -aj.sum()
         rate[self.i_c] = aj
-        if self.spec.cap_water.mode == "charge":
+        if self._charge:
             rate[self.i_w] = -evap_total
         bulb = self.spec.second_bulb
         extras = {}

@@ -118,6 +118,12 @@ class EvaporativeCap:
         p[:, ks.EVAPORATION], p[:, ks.RHO_AIR] = cap["wet_fraction"] * cap["h_m"], self.vapour_density_air
         return p
 
+    def update_surface_parameters(self, rows, faces, context) -> None:
+        """Rewrite, in place, the columns of ``surface_parameters``' rows that the context sets."""
+        cap = context["cap"]
+        rows[:, ks.H] = cap["h"]
+        rows[:, ks.EVAPORATION] = cap["wet_fraction"] * cap["h_m"]
+
     def dheat_flux_dwet(self, T_s, context) -> np.ndarray:
         """dq / d(wet_fraction) at fixed T_s."""
         rho, _ = saturated_water_vapour_density(T_s)
@@ -197,6 +203,12 @@ class CondensingWall:
         p[:, ks.INVENTORY] = vap["inventory"][faces]
         return p
 
+    def update_surface_parameters(self, rows, faces, context) -> None:
+        """Rewrite, in place, the columns of ``surface_parameters``' rows that the context sets."""
+        vap = context["vapour"]
+        rows[:, ks.P_VAPOUR] = vap["pressure"]
+        rows[:, ks.INVENTORY] = vap["inventory"][faces]
+
     def fluid_constants(self) -> np.ndarray:
         """The compiled solve's fluid vector (``fvsolver.kernels.surfaces.FLUID_CONSTANTS`` entries)."""
         f, eq = self.fluid, self.fluid.vapour_pressure
@@ -248,6 +260,10 @@ class RoomSurface:
         p[:, ks.H], p[:, ks.T_AIR], p[:, ks.EXTRA] = context[self.exchange]["h"], self.air_temperature, self.extra_flux
         p[:, ks.RADIATION], p[:, ks.T_SURROUNDINGS] = self.emissivity * STEFAN_BOLTZMANN, self.surroundings_temperature
         return p
+
+    def update_surface_parameters(self, rows, faces, context) -> None:
+        """Rewrite, in place, the column of ``surface_parameters``' rows that the context sets."""
+        rows[:, ks.H] = context[self.exchange]["h"]
 
     def heat_flux(self, T_s, time, centres, faces, context):
         h = context[self.exchange]["h"]

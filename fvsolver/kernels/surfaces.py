@@ -7,8 +7,8 @@ the pool's temperature), the wet cap (the same plus evaporation of water) or a c
 
 .. math:: \\kappa (T_s - T_P) = q(T_s)
 
-is solved by Newton's method safeguarded by bisection inside a bracket (q decreases with T_s for
-every kind, so the root is unique). The Python twin is the terms' own ``heat_flux`` through
+is solved by Newton's method safeguarded by bisection inside a bracket that its iterates build
+(q decreases with T_s for every kind, so the root is unique). The Python twin is the terms' own ``heat_flux`` through
 ``fvsolver.surface_balance.solve_surface``; the tests compare them.
 
 Short symbols only here: t temperature (K), q heat flux into the body (W/m2), m mass flux
@@ -49,8 +49,11 @@ def water_constants() -> tuple[np.ndarray, np.ndarray]:
 def _ppds12(t, tc, c0, c1, c2, c3, c4, r_tc, m):
     """Latent heat (J/kg) and its T-derivative, PPDS eq. 12."""
     tau = 1.0 - t / tc
-    lat = r_tc * (c0 * tau ** (1 / 3) + c1 * tau ** (2 / 3) + c2 * tau + c3 * tau**2 + c4 * tau**6) / m
-    dtau = (c0 / 3.0 * tau ** (-2 / 3) + 2.0 * c1 / 3.0 * tau ** (-1 / 3) + c2 + 2.0 * c3 * tau
+    # one fractional power: tau^(2/3), tau^(-1/3) and tau^(-2/3) follow from tau^(1/3) (round-off apart)
+    r1 = tau ** (1 / 3)
+    r2 = r1 * r1
+    lat = r_tc * (c0 * r1 + c1 * r2 + c2 * tau + c3 * tau**2 + c4 * tau**6) / m
+    dtau = (c0 / 3.0 / r2 + 2.0 * c1 / 3.0 / r1 + c2 + 2.0 * c3 * tau
             + 6.0 * c4 * tau**5)
     return lat, -r_tc * dtau / (m * tc)
 
@@ -120,6 +123,63 @@ def _face_flux(kind, ts, p, fl, water, wl):
 
 
 @jit
+def _solve_face(kind, p, kp, tf, x, fluid, water, water_latent):
+    """T_s of one face: kappa (T_s - T_foot) = q(T_s) from the start x (K)."""
+    # Newton's method on F = kappa (T_s - T_foot) - q(T_s), increasing in T_s: every iterate
+    # sets one side of the bracket [lo, hi] by the sign of F there. A side not yet known is
+    # approached by Newton steps no longer than `reach` (doubled at every such step, as a
+    # bracket is widened); once both are known, a step leaving them is a secant step or a
+    # halving. From a good guess (the last evaluation's) this costs the Newton iterations only.
+    lo = -np.inf
+    hi = np.inf
+    flo = -1.0
+    fhi = 1.0
+    reach = 0.5
+    for _ in range(400):
+        q, dq, _, _, _, _, _ = _face_flux(kind, x, p, fluid, water, water_latent)
+        f = kp * (x - tf) - q
+        df = kp - dq
+        if f <= 0.0:
+            lo = x
+            flo = f
+        else:
+            hi = x
+            fhi = f
+        new = x - f / df if df > 0.0 else (x + reach if f <= 0.0 else x - reach)
+        if hi == np.inf or lo == -np.inf:  # one side unknown: a bounded step towards it
+            if new > x + reach:
+                new = x + reach
+            elif new < x - reach:
+                new = x - reach
+            if not (new >= lo and new <= hi):
+                new = x + reach if f <= 0.0 else x - reach
+            reach *= 2.0
+        elif not (new >= lo and new <= hi):  # outside the bracket (across a kink): secant, or halve
+            den = fhi - flo
+            new = (lo * fhi - hi * flo) / den if den > 0.0 else 0.5 * (lo + hi)
+            if not (new > lo and new < hi):
+                new = 0.5 * (lo + hi)
+        done = abs(new - x) <= 2e-15 * abs(x) or hi - lo <= 4e-15 * abs(x)
+        x = new
+        if done:
+            break
+    return x
+
+
+@jit
+def _store(i, kind, x, p, fluid, water, water_latent, out):
+    q, dq, m, dm, dm_dp, dm_dc, lat = _face_flux(kind, x, p, fluid, water, water_latent)
+    out[i, TS] = x
+    out[i, Q] = q
+    out[i, DQ] = dq
+    out[i, M] = m
+    out[i, DM] = dm
+    out[i, DM_DP] = dm_dp
+    out[i, DM_DC] = dm_dc
+    out[i, LATENT] = lat
+
+
+@jit
 def solve_surfaces(kinds, params, kappa, t_foot, guess, fluid, water, water_latent, out):
     """Surface temperatures of coupled faces: kappa (T_s - T_foot) = q(T_s), face by face.
 
@@ -128,55 +188,30 @@ def solve_surfaces(kinds, params, kappa, t_foot, guess, fluid, water, water_late
     M, M/R, A..E (``water_constants()``); out : (n, OUTPUTS).
     """
     for i in range(kinds.shape[0]):
-        kind = kinds[i]
-        p = params[i]
-        kp = kappa[i]
         tf = t_foot[i]
-        x = guess[i] if guess[i] > 0.0 else tf
-        lo = x - 0.5
-        hi = x + 0.5
-        q, dq, _, _, _, _, _ = _face_flux(kind, lo, p, fluid, water, water_latent)
-        flo = kp * (lo - tf) - q
-        q, dq, _, _, _, _, _ = _face_flux(kind, hi, p, fluid, water, water_latent)
-        fhi = kp * (hi - tf) - q
-        for _ in range(200):  # widen the bracket until F(lo) <= 0 <= F(hi)
-            if flo <= 0.0 and fhi >= 0.0:
-                break
-            w = hi - lo
-            if flo > 0.0:
-                lo -= w
-                q, dq, _, _, _, _, _ = _face_flux(kind, lo, p, fluid, water, water_latent)
-                flo = kp * (lo - tf) - q
-            if fhi < 0.0:
-                hi += w
-                q, dq, _, _, _, _, _ = _face_flux(kind, hi, p, fluid, water, water_latent)
-                fhi = kp * (hi - tf) - q
-        for _ in range(200):
-            q, dq, _, _, _, _, _ = _face_flux(kind, x, p, fluid, water, water_latent)
-            f = kp * (x - tf) - q
-            df = kp - dq
-            if f <= 0.0:
-                lo = x
-                flo = f
-            else:
-                hi = x
-                fhi = f
-            new = x - f / df
-            if not (new >= lo and new <= hi):  # outside the bracket (across a kink): secant, or halve
-                den = fhi - flo
-                new = (lo * fhi - hi * flo) / den if den > 0.0 else 0.5 * (lo + hi)
-                if not (new > lo and new < hi):
-                    new = 0.5 * (lo + hi)
-            done = abs(new - x) <= 2e-15 * abs(x) or hi - lo <= 4e-15 * abs(x)
-            x = new
-            if done:
-                break
-        q, dq, m, dm, dm_dp, dm_dc, lat = _face_flux(kind, x, p, fluid, water, water_latent)
-        out[i, TS] = x
-        out[i, Q] = q
-        out[i, DQ] = dq
-        out[i, M] = m
-        out[i, DM] = dm
-        out[i, DM_DP] = dm_dp
-        out[i, DM_DC] = dm_dc
-        out[i, LATENT] = lat
+        x = _solve_face(kinds[i], params[i], kappa[i], tf, guess[i] if guess[i] > 0.0 else tf, fluid, water,
+                        water_latent)
+        _store(i, kinds[i], x, params[i], fluid, water, water_latent, out)
+
+
+@jit
+def solve_boundary_faces(kinds, params, faces, kappa, t_foot, guess, fluid, water, water_latent, t_s, q,
+                         dq_dtp, g1, terms):
+    """``solve_surfaces`` on the boundary faces ``faces`` (n,), gathering and scattering in place:
+    kappa, t_foot, guess (n_boundary,) (guess empty: start at t_foot); writes t_s, the heat flux
+    into the body q = kappa (T_s - T_foot), dq/dT_P = kappa g1 / (kappa - g1), g1 = dq/dT_s
+    (n_boundary,) and the rows of terms (n_boundary, OUTPUTS) at ``faces``."""
+    for i in range(faces.shape[0]):
+        b = faces[i]
+        kp = kappa[b]
+        tf = t_foot[b]
+        x0 = tf
+        if guess.shape[0] > 0 and guess[b] > 0.0:
+            x0 = guess[b]
+        x = _solve_face(kinds[i], params[i], kp, tf, x0, fluid, water, water_latent)
+        _store(b, kinds[i], x, params[i], fluid, water, water_latent, terms)
+        d = terms[b, DQ]
+        t_s[b] = x
+        g1[b] = d
+        q[b] = kp * (x - tf)
+        dq_dtp[b] = kp * d / (kp - d)

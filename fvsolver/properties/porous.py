@@ -113,16 +113,22 @@ def effective_conductivity(porosity: ArrayLike, saturation: ArrayLike, k_fibre: 
     conductivities = (_checked(k_fibre, "k_fibre", 0.0, np.inf, hint, low_open=True),
                       _checked(k_water, "k_water", 0.0, np.inf, hint, low_open=True),
                       _checked(k_air, "k_air", 0.0, np.inf, hint, low_open=True))
-    if model == "parallel":
-        result = sum(v * k for v, k in zip(fractions, conductivities))
-    elif model == "series":
-        result = 1.0 / sum(v / k for v, k in zip(fractions, conductivities))
-    elif model == "maxwell_eucken":
-        result = _maxwell_eucken(fractions, conductivities)
-    else:
-        result = _emt(fractions, conductivities)
+    result = mixture_conductivity(fractions, conductivities, model)
     shape = np.broadcast_shapes(*(np.shape(a) for a in fractions + conductivities))
     return np.broadcast_to(result, shape).copy()[()]
+
+
+def mixture_conductivity(fractions: tuple, conductivities: tuple, model: str):
+    """:func:`effective_conductivity`'s mixing rules on volume fractions (fibre, water, air) and
+    phase conductivities already checked, with the same operations (plain floats give the same
+    numbers as 0-d arrays: a caller that validated its inputs once calls this in its hot path)."""
+    if model == "parallel":
+        return sum(v * k for v, k in zip(fractions, conductivities))
+    if model == "series":
+        return 1.0 / sum(v / k for v, k in zip(fractions, conductivities))
+    if model == "maxwell_eucken":
+        return _maxwell_eucken(fractions, conductivities)
+    return _emt(fractions, conductivities)
 
 
 def effective_volumetric_heat_capacity(porosity: ArrayLike, saturation: ArrayLike, rho_c_fibre: ArrayLike,
