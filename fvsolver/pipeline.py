@@ -370,10 +370,13 @@ def _chosen_fields(fields, summary, most: int = 8) -> list:
     if len(chosen) > 1 and np.ptp(chosen[0][1]) < 1e-9 * max(1.0, float(np.abs(chosen[0][1]).max())):
         chosen = chosen[1:]
     # the last field written a step after the crossing (a run ends on the step after its target)
-    # would draw the same picture under the same rounded time: the crossing's panel stands for both
+    # would draw the same picture under the same time as the panels round it: the crossing's panel
+    # stands for both
+    from fvsolver.outputs.report import format_duration
+
     crossing = summary.get("time_to_target_s")
     if (len(chosen) > 1 and chosen[-2][0] == crossing
-            and chosen[-1][0] - chosen[-2][0] < 0.01 * max(chosen[-1][0], 1e-300)):
+            and format_duration(chosen[-1][0]) == format_duration(crossing)):
         chosen = chosen[:-1]
     if len(chosen) > most:
         keep = set(np.linspace(0, len(chosen) - 1, most).astype(int))

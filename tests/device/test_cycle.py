@@ -145,8 +145,10 @@ def test_a_humid_room_never_tips():
 
 
 def test_the_running_device_demo_gives_its_recorded_result():
-    """cases/running_device.toml (invented scenario): recorded on this version, 21.42 s to the first
-    tip, a period settling at 5.329 s. (The demo now has 8 cells through the felt and a time
+    """cases/running_device.toml (invented scenario): recorded on this version, 21.40 s to the first
+    tip, a period settling at 5.329 s (21.42 s before the Newton loop ended at a balance at the
+    round-off of its totals: one failed step less changed the step sequence, inside the first
+    tip's 0.2 % time-step uncertainty). (The demo now has 8 cells through the felt and a time
     tolerance of 0.005 K, which keep its first tip within about 0.2 % of the refined value; with 3
     cells and 0.02 K it gave 21.11 s and 5.295 s. Before inventories were kept >= 0: 21.056 s and
     5.293 s; dried faces no longer hold negative condensate in the tipping column's mass. With the
@@ -157,7 +159,7 @@ def test_the_running_device_demo_gives_its_recorded_result():
 
     s = run(load_case(Path(__file__).parents[2] / "cases" / "running_device.toml")).summary
     assert s["outcome"] == "running"
-    assert s["first_tip_s"] == pytest.approx(21.419, rel=1e-3)
+    assert s["first_tip_s"] == pytest.approx(21.404, rel=1e-3)
     assert s["period_s"] == pytest.approx(5.329, rel=2e-3)
     assert 640 < s["dips_per_hour"] < 720 and s["water_per_day_kg"] > 0
 
