@@ -335,6 +335,14 @@ def row_scale(a: sp.csc_matrix) -> np.ndarray | None:
     reach = np.zeros(m)
     with np.errstate(over="ignore"):
         np.maximum.at(reach, rows[sel], mag[sel] / diag[cols[sel]])
+    return _row_factors(m, weak, colmax, diag, reach)
+
+
+def _row_factors(m: int, weak, colmax, diag, reach):
+    """The rows' scale factors from the weak rows' wanted lift (their column's largest entry over
+    their diagonal) capped by their reach (the largest of their entries over their columns'
+    diagonals); None where no row is lifted."""
+    with np.errstate(over="ignore"):
         want = np.ones(m)
         want[weak] = colmax[weak] / diag[weak]
         cap = np.full(m, np.inf)
@@ -398,13 +406,7 @@ class _RowScaling:
             ratio = np.divide(mag[entries], below, out=np.zeros(len(entries)), where=sel)
             reach = np.zeros(m)
             reach[rows] = np.maximum.reduceat(ratio, starts)
-            want = np.ones(m)
-            want[weak] = colmax[weak] / diag[weak]
-            cap = np.full(m, np.inf)
-            cap[reach > 0.0] = 1.0 / reach[reach > 0.0]
-        rho = np.maximum(np.minimum(want, cap), 1.0)
-        rho[~np.isfinite(rho)] = 1.0
-        return rho if np.any(rho > 1.0) else None
+        return _row_factors(m, weak, colmax, diag, reach)
 
 
 def factorise(matrix: sp.spmatrix | LowRankUpdate) -> Factor:
