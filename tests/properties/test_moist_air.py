@@ -2,12 +2,12 @@
 from __future__ import annotations
 
 import numpy as np
-import psychrolib
 import pytest
 from CoolProp.CoolProp import HAPropsSI, PropsSI
 
 from fvsolver.errors import PropertyError
 from fvsolver.properties import moist_air, water
+from tests.reference_libs import psychrolib_si
 
 # (dry bulb C, relative humidity, pressure Pa): room, humid, dry, hot, cool and low-pressure states.
 STATES = [
@@ -25,8 +25,7 @@ STATES = [
 
 @pytest.fixture(scope="module")
 def psychro():
-    psychrolib.SetUnitSystem(psychrolib.SI)
-    return psychrolib
+    return psychrolib_si()
 
 
 def test_wet_bulb_matches_psychrolib(psychro):
