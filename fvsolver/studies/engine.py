@@ -12,6 +12,8 @@ records it as a failed run instead of stopping.
 """
 from __future__ import annotations
 
+import time
+
 import uuid
 from collections.abc import Callable, Sequence
 from typing import Any
@@ -32,6 +34,11 @@ def require_distributed():
                         f"Dask cluster need the optional extra '{EXTRA}': {INSTALL_HINT}, or leave out "
                         "--scheduler/--workers to run on this machine (--jobs N)") from None
     return distributed
+
+
+# closing a local cluster: how long to let killed workers' restarts finish, and how often to try
+CLOSE_SETTLE_S = 10.0
+CLOSE_ATTEMPTS = 3
 
 
 class DaskEngine:
@@ -86,9 +93,25 @@ class DaskEngine:
         self.close()
 
     def close(self) -> None:
+        if self.cluster is None:
+            self.client.close()
+            return
+        # a worker killed by its call is being restarted by its nanny: closing the cluster while
+        # the new process has not started yet trips distributed's own assertion ("can only join a
+        # started process"), so let the restarts finish first, and close again if it still races
+        try:
+            self.client.wait_for_workers(len(self.cluster.workers), timeout=CLOSE_SETTLE_S)
+        except Exception:  # noqa: BLE001 - a worker that cannot come back: close what there is
+            pass
         self.client.close()
-        if self.cluster is not None:
-            self.cluster.close()
+        for attempt in range(CLOSE_ATTEMPTS):
+            try:
+                self.cluster.close()
+                return
+            except AssertionError:
+                if attempt == CLOSE_ATTEMPTS - 1:
+                    raise
+                time.sleep(0.5)
 
     @property
     def description(self) -> str:
