@@ -463,7 +463,7 @@ def _compilable(cond) -> bool:
 
 @dataclass(frozen=True)
 class _CompiledSurfaces:
-    """The coupled patches solved together by ``kernels.surfaces.solve_surfaces``."""
+    """The coupled patches solved together by ``kernels.surfaces.solve_boundary_faces``."""
 
     groups: tuple          # (term, faces) per patch
     faces: np.ndarray      # every face, in the groups' order
