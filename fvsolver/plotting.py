@@ -37,11 +37,14 @@ def _subplots(nrows: int = 1, ncols: int = 1, **options):
     return fig, fig.subplots(nrows, ncols, **options)
 
 
-def _save(fig, path: Path) -> None:
+def _save(fig, path: Path, tight: bool = True) -> None:
+    """Write ``fig`` as a PNG (atomically).  ``tight`` crops to what was drawn, which costs a second
+    draw; a constrained-layout figure whose titles :func:`_titles` wrapped to its width already fits
+    its frame and is drawn once (``tight=False``: 0.5 s of a run's history figure).  A fast PNG
+    compression: the figures are flat colours, where it costs little size."""
     buf = io.BytesIO()
-    # "tight" costs a second draw, but a title wider than a one-panel figure would be cut off without
-    # it. A fast PNG compression: the figures are flat colours, where it costs little size.
-    fig.savefig(buf, format="png", dpi=130, bbox_inches="tight", pil_kwargs={"compress_level": 1})
+    fig.savefig(buf, format="png", dpi=130, bbox_inches="tight" if tight else None,
+                pil_kwargs={"compress_level": 1})
     atomic_write_bytes(Path(path), buf.getvalue())
 
 
@@ -285,8 +288,8 @@ def temperature_field_plot(
     celsius = cbar.ax.secondary_yaxis("left", functions=(_kelvin_to_celsius, _celsius_to_kelvin))
     celsius.set_ylabel("temperature (°C)")
     celsius.tick_params(labelsize=8)
-    _titles(fig, title, subtitle)
-    _save(fig, path)
+    _titles(fig, title, subtitle, widest=0.0)
+    _save(fig, path, tight=False)
 
 
 # ----------------------------------------------------------------------------- history
@@ -587,15 +590,48 @@ def history_plot(
     if t_hi > t_lo:
         axes[-1].set_xlim(t_lo, t_hi)
     _titles(fig, title, subtitle)
-    _save(fig, path)
+    _save(fig, path, tight=False)
 
 
-def _titles(fig, title: str, subtitle: str) -> None:
-    """The user's title, and under it the scenario computed from the inputs."""
-    if title and subtitle:
-        fig.suptitle(f"{title}\n{subtitle}", fontsize=10.5)
-    elif title or subtitle:
-        fig.suptitle(title or subtitle, fontsize=11)
+def _titles(fig, title: str, subtitle: str, widest: float = 9.0) -> None:
+    """The user's title, and under it the scenario computed from the inputs.  A narrow figure is
+    widened to its longest line, up to ``widest`` inches (``widest=0``: never widened, for panels
+    whose aspect is fixed, which would float in the extra width); a line still too long is wrapped
+    at word breaks to the figure's width (measured as drawn), so nothing is cut off at its edges."""
+    if not (title or subtitle):
+        return
+    size = 10.5 if title and subtitle else 11.0
+    lines = [line for line in (title, subtitle) if line]
+    need = max(_text_width(fig, line, size) for line in lines) / fig.dpi / _TITLE_ROOM
+    if need > fig.get_figwidth():
+        fig.set_figwidth(min(need, max(widest, fig.get_figwidth())))
+    fig.suptitle("\n".join(_wrapped(fig, line, size) for line in lines), fontsize=size)
+
+
+_TITLE_ROOM = 0.96  # the share of a figure's width its title lines may take
+
+
+def _text_width(fig, text: str, fontsize: float) -> float:
+    """``text``'s width in pixels at ``fontsize``, as ``fig``'s canvas draws it."""
+    from matplotlib.text import Text
+
+    return Text(0, 0, text, fontsize=fontsize, figure=fig).get_window_extent(fig.canvas.get_renderer()).width
+
+
+def _wrapped(fig, text: str, fontsize: float) -> str:
+    """``text`` broken at spaces into lines that each fit the title's share of ``fig``'s width."""
+    import textwrap
+
+    room = _TITLE_ROOM * fig.get_figwidth() * fig.dpi
+    if _text_width(fig, text, fontsize) <= room:
+        return text
+    chars = len(text)  # the most characters a line may hold: shrink until every line fits
+    while chars > 8:
+        chars = max(8, int(chars * 0.9))
+        lines = textwrap.wrap(text, chars, break_long_words=True)
+        if all(_text_width(fig, line, fontsize) <= room for line in lines):
+            return "\n".join(lines)
+    return "\n".join(textwrap.wrap(text, 8))
 
 
 def _with_unit(key: str, units: Mapping | None) -> str:
@@ -770,7 +806,7 @@ def cycle_plot(history: Mapping[str, np.ndarray], cycles: Sequence[Mapping], pat
     bottom.grid(alpha=0.3)
     bottom.yaxis.set_major_formatter(matplotlib.ticker.ScalarFormatter(useOffset=False))
     _titles(fig, title, subtitle)
-    _save(fig, path)
+    _save(fig, path, tight=False)
 
 
 def fit_plot(time: np.ndarray, measured: Mapping[str, np.ndarray], computed: Mapping[str, np.ndarray], path: Path,

@@ -157,8 +157,8 @@ def test_history_plot_panels_keep_the_figure_width_whatever_their_legends(tmp_pa
     h.update({"condensing_rate_kg_s": 2e-6 * np.ones(n), "re_evaporation_rate_kg_s": 5e-7 * np.ones(n),
               "evaporative_cooling_w": np.linspace(0.99, 0.92, n), "net_heat_out_w": np.linspace(0.98, 0.85, n)})
     saved = []
-    monkeypatch.setattr(plotting, "_save", lambda fig, path: (fig.savefig(io.BytesIO(), format="png"),
-                                                               saved.append(fig)))
+    monkeypatch.setattr(plotting, "_save", lambda fig, path, **kw: (fig.savefig(io.BytesIO(), format="png"),
+                                                                     saved.append(fig)))
     plotting.history_plot(h, tmp_path / "history.png", 1200.0, 900.0 * math.log(5.0), title="run")
     (fig,) = saved
     renderer = fig.canvas.get_renderer()
@@ -169,6 +169,36 @@ def test_history_plot_panels_keep_the_figure_width_whatever_their_legends(tmp_pa
         box = ax.get_window_extent(renderer)
         assert box.width >= 0.6 * width, (box.width, width)
         assert ax.get_legend().get_window_extent(renderer).width <= box.width * 1.02
+
+
+@pytest.mark.parametrize("figure", ["history", "field"])
+def test_a_long_title_and_scenario_wrap_inside_a_figure_drawn_once(tmp_path, monkeypatch, capped, figure):
+    """The run's figures are saved without a second, cropping draw: their titles must then fit the
+    figure's width by themselves, however long (a title is cut at 100 characters; a scenario line
+    is longer)."""
+    title = "Wide-mouth bulb, 1.5 mm borosilicate wall, thick cotton cap, " * 2
+    subtitle = ("room 24.0 C, 45 % relative humidity, still air (0.1 m/s); wet-bulb 16.4 C; cap fed by a "
+                "water glass at 20.0 C; dichloromethane fill")
+    drawn = []
+    original = plotting._save
+
+    def save(fig, path, tight=True):
+        drawn.append((fig, tight))
+        original(fig, path, tight=tight)
+
+    monkeypatch.setattr(plotting, "_save", save)
+    if figure == "history":
+        plotting.history_plot(_history(), tmp_path / "h.png", 1200.0, 900.0, title=title, subtitle=subtitle)
+    else:
+        plotting.temperature_field_plot(capped, [_field(capped)], tmp_path / "f.png", title=title,
+                                        subtitle=subtitle)
+    ((fig, tight),) = drawn
+    assert not tight
+    box = fig._suptitle.get_window_extent(fig.canvas.get_renderer())
+    width = fig.get_figwidth() * fig.dpi
+    assert box.x0 >= 0 and box.x1 <= width, (box, width)
+    assert fig._suptitle.get_text().count("\n") >= 3  # each of the two lines wrapped at least once
+    assert "dichloromethane fill" in fig._suptitle.get_text()
 
 
 def test_history_plot_with_only_the_required_columns(tmp_path):

@@ -16,7 +16,7 @@ from tests.mesh.test_builders import HEAD
 def figures(monkeypatch):
     """The figures the plotting functions would have saved, kept open for inspection."""
     kept = []
-    monkeypatch.setattr(plotting, "_save", lambda fig, path: kept.append(fig))
+    monkeypatch.setattr(plotting, "_save", lambda fig, path, **kw: kept.append(fig))
     yield kept
     for fig in kept:
         fig.clear()

@@ -10,8 +10,9 @@ import sys
 from pathlib import Path
 
 import numpy as np
+import pytest
 
-from fvsolver.outputs.painter import Painter, draw_here
+from fvsolver.outputs.painter import Painter, draw_here, idle_cores
 
 ROOT = Path(__file__).resolve().parents[1]
 HEAVY = ("numpy", "scipy", "numba", "matplotlib", "meshio", "fvsolver.pipeline", "fvsolver.conduction")
@@ -76,6 +77,17 @@ def test_the_helper_draws_the_same_png_and_a_dead_helper_is_drawn_here(tmp_path)
     assert here[:8] == b"\x89PNG\r\n\x1a\n"
     assert (tmp_path / "helper.png").read_bytes() == here
     assert (tmp_path / "after.png").read_bytes() == here
+
+
+def test_a_core_counts_as_free_from_the_idle_time_now_not_the_load_average():
+    """Two readings of /proc/stat's first line (user, nice, system, idle, iowait, irq, softirq,
+    steal), 10 ticks of each of 2 cores apart."""
+    start = [1000, 0, 200, 5000, 10, 0, 0, 0]
+    both_idle = [1000, 0, 200, 5019, 11, 0, 0, 0]  # 20 of 20 ticks idle or waiting
+    one_busy = [1010, 0, 200, 5010, 10, 0, 0, 0]  # a neighbour runs on one core
+    assert idle_cores(start, both_idle, 2) == pytest.approx(2.0)
+    assert idle_cores(start, one_busy, 2) == pytest.approx(1.0)
+    assert idle_cores(start, start, 2) == 0.0  # no time passed: nothing known, nothing free
 
 
 def _check_in_a_process(case: Path) -> tuple[int, str]:

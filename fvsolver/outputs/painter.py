@@ -13,19 +13,51 @@ process died is drawn here, so a lost helper costs time, never a figure.
 from __future__ import annotations
 
 import os
+import time
 from concurrent.futures import Future
 
 
-def idle_core() -> bool:
-    """Whether a core looks free: the 1-minute load average at least one below the number of
-    cores.  Only then does a helper process pay off; on a machine whose cores are all busy it
-    would add its own start-up (an interpreter, numpy, matplotlib: about 1 s of CPU) to the work
-    and hide nothing (measured on a 2-core machine at load 4: 1.4-5.6 s slower than drawing in
-    the run's own process)."""
-    try:
-        return os.getloadavg()[0] <= (os.cpu_count() or 1) - 1
-    except OSError:  # no load average on this platform
+def idle_core(interval: float = 0.05) -> bool:
+    """Whether a core looks free for a helper process beside this one.
+
+    Measured now: the cores' idle time over ``interval`` s (from ``/proc/stat``, while this process
+    sleeps) must add up to at least 1.5 cores, that is this process's own and most of another.
+    The load average is a minute's lagging mean: right after another run (a sweep, a script's
+    loop) it still counts that run as busy, and the figures are then drawn in line for nothing
+    (measured: runs of the demo back to back drew them in line every time).
+
+    Only with a free core does a helper pay off; on a machine whose cores are all busy it would
+    add its own start-up (an interpreter, numpy, matplotlib: about 1 s of CPU) to the work and hide
+    nothing (measured on a 2-core machine at load 4: 1.4-5.6 s slower than drawing in the run's own
+    process).  Without ``/proc/stat``, the 1-minute load average must be at least one below the
+    number of cores."""
+    cores = os.cpu_count() or 1
+    if cores < 2:
         return False
+    try:
+        first = _cpu_times()
+        time.sleep(interval)
+        second = _cpu_times()
+    except (OSError, ValueError, IndexError):
+        try:
+            return os.getloadavg()[0] <= cores - 1
+        except OSError:  # no load average on this platform
+            return False
+    return idle_cores(first, second, cores) >= 1.5
+
+
+def idle_cores(first: list[int], second: list[int], cores: int) -> float:
+    """How many of ``cores`` were idle between two readings of :func:`_cpu_times` (idle time and
+    time waiting for input/output, as a share of all the time that passed)."""
+    total = sum(second) - sum(first)
+    idle = (second[3] + second[4]) - (first[3] + first[4])
+    return cores * idle / total if total > 0 else 0.0
+
+
+def _cpu_times() -> list[int]:
+    """All cores' times (user, nice, system, idle, iowait, ...) in clock ticks, from /proc/stat."""
+    with open("/proc/stat", encoding="ascii") as f:
+        return [int(v) for v in f.readline().split()[1:]]
 
 
 def _draw(name: str, args: tuple, kwargs: dict) -> None:
