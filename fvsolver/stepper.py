@@ -172,6 +172,10 @@ class TimeStepper:
         self._affine = affine() if affine is not None else None
         self._affine_rate = None  # F at the current state, for affine problems
         self._pending_rate = None
+        # the first step each kind of restart (a device tipping, standing up) was last taken with:
+        # a kind that recurs starts the next time from what its error allowed, not from a guess
+        self.start_steps: dict[str, float] = {}
+        self._start_kind: str | None = None
 
     # -- public contract -------------------------------------------------------------------
     @property
@@ -224,7 +228,10 @@ class TimeStepper:
                 continue
             break
         landing = self._landing
+        started = len(self._history.t) == 1
         self._accept(dt, y_new, m_new, ev, order, w_new)
+        if started and self._start_kind is not None:
+            self._learn_start(dt, err, order, landing)
         if opt.adaptive:
             factor = opt.max_growth if err == 0.0 else min(opt.max_growth, max(0.2, 0.9 * err ** (-1.0 / (order + 1))))
             if 1.0 <= factor < 1.25:
@@ -243,9 +250,15 @@ class TimeStepper:
         if self.status == "failed":
             raise SolverError(self.message)
 
-    def reset(self, y: np.ndarray, dt: float | None = None) -> None:
+    def reset(self, y: np.ndarray, dt: float | None = None, kind: str | None = None) -> None:
         """Restart from a changed state at the current time (water added, a switch thrown):
-        the history is dropped, so the next step is a backward-Euler start."""
+        the history is dropped, so the next step is a backward-Euler start.
+
+        ``kind`` names a restart that recurs (a device tipping): its first step is then the one the
+        last restart of that kind settled on (see :meth:`_learn_start`), when that is shorter than
+        ``dt``.  A start after a sudden change (a cap dipped in water) needs far shorter steps than
+        any fixed guess: the running device's tips retook their first step three times each, and
+        its stand-ups twice, a third of the run's rejected steps."""
         self.y = np.array(y, dtype=float)
         m, _ = self.problem.capacity(self.y)
         self._history = _History([self.t], [self.y.copy()], [m])
@@ -254,6 +267,9 @@ class TimeStepper:
         self._f0 = None
         self._affine_rate = None
         self.dt = float(dt if dt is not None else self.options.initial_step)
+        self._start_kind = kind
+        if kind in self.start_steps:
+            self.dt = min(self.dt, self.start_steps[kind])
 
     def rewind(self, t: float, y: np.ndarray) -> None:
         """Go back to the state ``y`` at ``t`` that the last accepted step started from (an event
@@ -271,6 +287,19 @@ class TimeStepper:
         # the retaken stretch starts afresh (backward Euler): short steps keep its error at the
         # tolerance's level
         self.reset(y, min(self.options.initial_step, self.last_dt))
+
+    def _learn_start(self, dt: float, err: float, order: int, landing) -> None:
+        """Keep the first step of the start just taken (of kind ``self._start_kind``) for the next
+        start of that kind: ``dt`` scaled to 0.8 of the tolerance by its error estimate (err ~
+        dt^(order + 1)), by at most the step growth allowed and at least a fifth.  A step cut short
+        to land on a stop time is no measure of what its error would have allowed: the kind keeps
+        what it had."""
+        kind, self._start_kind = self._start_kind, None
+        if not self.options.adaptive or landing is not None:
+            return
+        growth = self.options.max_growth
+        factor = growth if err <= 0.0 else min(growth, max(0.2, 0.8 * err ** (-1.0 / (order + 1))))
+        self.start_steps[kind] = dt * factor
 
     def add_stop_time(self, t: float) -> None:
         """A time the steps must land on exactly (an event), after the current time."""
