@@ -67,7 +67,6 @@ def save(folder: Path, stepper: TimeStepper, monitor, rows: list, field_entries:
         "case_sha256": sha256, "t": stepper.t, "dt": stepper.dt, "last_dt": stepper.last_dt, "order": stepper.order,
         "inflow": stepper._inflow, "balance_error": stepper.balance_error,
         "cumulative_inflow": stepper.cumulative_inflow, "counters": asdict(stepper.counters),
-        "start_steps": stepper.start_steps, "start_kind": stepper._start_kind,
         "monitor": None if monitor is None else {k: getattr(monitor, k) for k in MONITOR_FIELDS}
         | {"previous": list(monitor._previous)},
         "rows": rows, "field_entries": field_entries, "worst": worst,
@@ -106,10 +105,6 @@ def _check_meta(meta, setup) -> None:
         d = meta[key]
         _need(isinstance(d, dict) and all(isinstance(k, str) and _real(v) for k, v in d.items()),
               f"{key} is not a table of finite numbers")
-    starts = meta.get("start_steps", {})  # absent from a checkpoint written before restarts were learned
-    _need(isinstance(starts, dict) and all(isinstance(k, str) and _real(v) and v > 0.0 for k, v in starts.items()),
-          "start_steps is not a table of finite steps > 0")
-    _need(meta.get("start_kind") is None or isinstance(meta.get("start_kind"), str), "start_kind is not a name")
     c = meta["counters"]
     names = {f.name for f in fields(Counters)}
     _need(isinstance(c, dict) and set(c) == names and all(isinstance(v, int) and not isinstance(v, bool) and v >= 0
@@ -240,8 +235,6 @@ def restore(stepper: TimeStepper, monitor, meta: dict, arrays: dict) -> None:
     stepper.balance_error = {k: float(v) for k, v in meta["balance_error"].items()}
     stepper.cumulative_inflow = {k: float(v) for k, v in meta["cumulative_inflow"].items()}
     stepper.counters = Counters(**meta["counters"])
-    stepper.start_steps = {k: float(v) for k, v in meta.get("start_steps", {}).items()}
-    stepper._start_kind = meta.get("start_kind")
     stepper._f0 = arrays["f0"].astype(float) if "f0" in arrays else None
     stepper._last_evaluation = None
     stepper._affine_rate = arrays["affine_rate"].astype(float) if "affine_rate" in arrays else None

@@ -237,7 +237,7 @@ def run(case: Case, out: str | Path | None = None, overwrite: bool = False, prog
                 fields.write(monitor.time_to_target, stepper.dense(monitor.time_to_target), None)
             for when, mass, temperature in rewettings:
                 if stepper.t == when:
-                    stepper.reset(monitor.rewet(stepper.y, mass, temperature), kind="rewetting")
+                    stepper.reset(monitor.rewet(stepper.y, mass, temperature))
             rows.append(_history_row(setup, stepper, monitor))
             if fields is not None and np.any(np.isclose(stepper.t, setup.field_times, rtol=0, atol=1e-12)):
                 fields.write(stepper.t, stepper.y, stepper.last_evaluation)

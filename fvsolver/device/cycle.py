@@ -164,7 +164,7 @@ class CycleController:
         self.phase = "tipped"
         p.tipped = True
         self._stand_at = t + self.spec.tipped_time
-        stepper.reset(y, min(stepper.options.initial_step, 0.1 * self.spec.tipped_time), kind="tip")
+        stepper.reset(y, min(stepper.options.initial_step, 0.1 * self.spec.tipped_time))
         stepper.add_stop_time(self._stand_at)
         if len(self.tips) >= self.spec.max_cycles + 1:
             self.finished = True
@@ -175,7 +175,7 @@ class CycleController:
         self.phase = "standing"
         p.tipped = False
         self.stand_times.append(stepper.t)
-        stepper.reset(stepper.y, stepper.options.initial_step, kind="stand")
+        stepper.reset(stepper.y, stepper.options.initial_step)
 
     def _close_cycle(self, t: float, column: dict, pr: dict) -> None:
         """One row per cycle, from the previous tip (or the start) to this tip."""
