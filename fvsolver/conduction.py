@@ -29,6 +29,10 @@ from fvsolver.surface_balance import SURFACE_ITERATIONS, solve_surface as _solve
 
 
 
+# the per-cell properties a material's uniform_properties(context) gives, by index
+_UNIFORM_INDEX = {"conductivity_at": 0, "volumetric_heat_capacity": 1}
+
+
 @dataclass(frozen=True)
 class VolumetricSource:
     """Heat generated inside the body, W/m3 (a number or f(centres (n, 2), time))."""
@@ -173,6 +177,8 @@ class ConductionProblem:
         self._constant_c = all(not m.context_dependent and m.heat_capacity.is_constant for m in self.materials)
         self._cells = [np.flatnonzero(mesh.cell_material == i) for i in range(len(self.materials))]
         self._fixed_per_cell = {}
+        self._uniform_kept = {}  # attribute: (the materials' numbers, the per-cell array filled from them)
+        self._capacity_kept = None  # (rho c per cell, V rho c) of the last uniform rho c
         self._boundary_cells = np.unique(mesh.boundary_cell)
         self._surface_guess: np.ndarray | None = None
         self._correction_cache = None
@@ -210,14 +216,32 @@ class ConductionProblem:
     def _per_cell(self, T: np.ndarray, attribute: str, context) -> np.ndarray:
         fixed = self._fixed_per_cell.get(attribute)
         if fixed is None:
-            fixed = self._fixed_per_cell[attribute] = self._split_fixed(attribute)
-        base, varying, energy = fixed
+            split = self._split_fixed(attribute)
+            # materials whose k and rho c are one number each at a context (PorousCap.uniform_properties)
+            uniform = bool(split[1]) and all(hasattr(m, "uniform_properties") for m, _ in split[1])
+            fixed = self._fixed_per_cell[attribute] = (*split, uniform)
+        base, varying, energy, uniform = fixed
+        index = _UNIFORM_INDEX.get(attribute) if uniform else None
+        if index is not None:
+            # filled from those numbers, and kept while they stay the same (never written to)
+            values = tuple(m.uniform_properties(context)[index] for m, _ in varying)
+            kept = self._uniform_kept.get(attribute)
+            if kept is not None and kept[0] == values:
+                return kept[1]
+            out = np.empty(self.n) if base is None else base.copy()
+            for (_, cells), value in zip(varying, values):
+                out[cells] = value
+            self._uniform_kept[attribute] = (values, out)
+            return out
         out = np.empty(self.n) if base is None else base.copy()
         if energy is not None:  # Material.volumetric_energy of a constant c: rho (c (T - T_ref))
             cells, rho, c = energy
             out[cells] = rho * (c * (T[cells] - REFERENCE_TEMPERATURE))
         for m, cells in varying:
-            out[cells] = getattr(m, attribute)(T[cells], context)
+            if uniform and attribute == "volumetric_energy":  # rho c (T - T_ref), as the material gives it
+                out[cells] = m.uniform_properties(context)[1] * (T[cells] - REFERENCE_TEMPERATURE)
+            else:
+                out[cells] = getattr(m, attribute)(T[cells], context)
         return out
 
     def _split_fixed(self, attribute: str):
@@ -287,8 +311,13 @@ class ConductionProblem:
                 self._capacity_cache = v * self._per_cell(T, "volumetric_heat_capacity", context)
             dm = self._capacity_cache
             return dm * (T - REFERENCE_TEMPERATURE), dm
-        return (v * self._per_cell(T, "volumetric_energy", context),
-                v * self._per_cell(T, "volumetric_heat_capacity", context))
+        rho_c = self._per_cell(T, "volumetric_heat_capacity", context)
+        kept = self._capacity_kept
+        if kept is None or kept[0] is not rho_c:  # rho c kept by _per_cell: so is V rho c (never written to)
+            kept = (rho_c, v * rho_c)
+            if self._fixed_per_cell["volumetric_heat_capacity"][3]:
+                self._capacity_kept = kept
+        return v * self._per_cell(T, "volumetric_energy", context), kept[1]
 
     def _surface(self, T, time, k, context=None):
         """Surface temperatures, heat fluxes and their T_P derivatives on every boundary face, at
@@ -390,12 +419,12 @@ class ConductionProblem:
         if self._g_constant is not None:
             return self._g_constant
         last = self._g_last
-        if last is not None and np.array_equal(last[0], k):
-            return last[1]
+        if last is not None and (last[0] is k or np.array_equal(last[1], k)):
+            return last[2]  # (the same kept conductivities, or equal ones)
         mesh, st = self.mesh, self.stencil
         g = np.empty(mesh.n_faces)
         kern.face_conductance(k, mesh.owner, mesh.neighbour, st.dist_owner, st.dist_neighbour, st.geometry, g)
-        self._g_last = (k.copy(), g)
+        self._g_last = (k, k.copy(), g)
         return g
 
     def _face_k(self, g: np.ndarray) -> np.ndarray:

@@ -76,6 +76,12 @@ class PorousCap:
         self.__dict__["_last"] = (s, k, rho_c)  # a cache, not a field: the dataclass stays frozen
         return k, rho_c
 
+    def uniform_properties(self, context) -> tuple[float, float]:
+        """(k W/(m K), rho c J/(m3 K)), the same in every cap cell at one context (they follow the
+        saturation only): the conduction problem fills its per-cell arrays from these two numbers
+        and keeps them while they stay the same."""
+        return self._properties(context)
+
     def conductivity_at(self, T: np.ndarray, context=None) -> np.ndarray:
         return np.full(np.shape(T), self._properties(context)[0])
 

@@ -26,6 +26,7 @@ the vapour's enthalpy G (c_l (T_p - T_ref) + L(T_p)).
 from __future__ import annotations
 
 from dataclasses import dataclass, field, replace
+from functools import cached_property
 
 import numpy as np
 
@@ -56,12 +57,32 @@ class DeviceEvaluation:
     rate: np.ndarray
     conduction: Evaluation
     context: dict
-    inflows: dict
-    grosses: dict
     condensation: np.ndarray      # kg/(m2 s) on the inner faces (negative: evaporation)
     evaporation: np.ndarray       # kg/(m2 s) on the cap faces
     sensible: np.ndarray          # W into each cell from the water's sensible enthalpy
     extras: dict = field(default_factory=dict)
+    # what the totals' inflows and gross exchanges are summed from, when first asked for (the
+    # stepper asks only at the iterates whose balance it checks): the mass flows A j into the
+    # inner faces, kg/s, the total evaporation, kg/s, and the second bulb's loss conductance, W/K
+    wall_flow: np.ndarray | None = None
+    evaporation_total: float = 0.0
+    loss_conductance: float = 0.0
+
+    @cached_property
+    def inflows(self) -> dict:
+        rate, tb = self.rate, self.extras["i_tb"]
+        return {"energy": self.conduction.heat_in + float(self.sensible.sum()), "working_fluid": 0.0,
+                "cap_water": float(rate[self.extras["i_w"]]), "second_bulb_energy": float(rate[tb]),
+                "pool_energy": float(rate[tb])}
+
+    @cached_property
+    def grosses(self) -> dict:
+        x = self.extras
+        return {"energy": self.conduction.gross_heat + float(np.abs(self.sensible).sum()),
+                "working_fluid": float(np.abs(self.wall_flow).sum()) + abs(x.get("joint_flow", 0.0)) + 1e-300,
+                "cap_water": abs(self.evaporation_total) + 1e-300,
+                "second_bulb_energy": abs(float(self.rate[x["i_tb"]])) + self.loss_conductance + 1e-300,
+                "pool_energy": x.get("pool_gross", 0.0) + 1e-300}
 
     def inflow(self, group: str) -> float:
         return self.inflows[group]
@@ -452,18 +473,11 @@ class DeviceProblem:
             extras = self._pool_rates(y, ev, rate)
         elif bulb.mode == "lumped":
             rate[self.i_tb] = bulb.loss_conductance * (self.spec.room.air_temperature - y[self.i_tb]) + bulb.heater_power
-        inflows = {"energy": ev.heat_in + float(sensible.sum()), "working_fluid": 0.0,
-                   "cap_water": float(rate[self.i_w]), "second_bulb_energy": float(rate[self.i_tb]),
-                   "pool_energy": float(rate[self.i_tb])}
-        grosses = {"energy": ev.gross_heat + float(np.abs(sensible).sum()),
-                   "working_fluid": float(np.abs(aj).sum()) + abs(extras.get("joint_flow", 0.0)) + 1e-300,
-                   "cap_water": abs(evap_total) + 1e-300,
-                   "second_bulb_energy": abs(float(rate[self.i_tb])) + bulb.loss_conductance + 1e-300,
-                   "pool_energy": extras.get("pool_gross", 0.0) + 1e-300}
-        return DeviceEvaluation(rate, ev, ctx, inflows, grosses, j, m_e, sensible,
+        return DeviceEvaluation(rate, ev, ctx, j, m_e, sensible,
                                 {"dj_dt": dj_dt, "dj_dp": dj_dp, "dj_dc": dj_dc, "dme_dt": dme_dt,
                                  "dsensible": dsensible, "sensible_per_evaporation": self._per_evaporation,
-                                 "T": T, **extras})
+                                 "T": T, "i_w": self.i_w, "i_tb": self.i_tb, **extras},
+                                aj, evap_total, bulb.loss_conductance)
 
     def joint_flow(self, y: np.ndarray) -> tuple[float, float, float]:
         """Vapour flow from the pool into the head while tipped (kg/s) and its derivatives with
