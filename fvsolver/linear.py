@@ -95,16 +95,30 @@ class Factor:
     """
 
     def __init__(self, lu: spla.SuperLU, n: int, order: np.ndarray | None = None,
-                 row_scale: np.ndarray | None = None):
+                 row_scale: np.ndarray | None = None, inverse: np.ndarray | None = None):
         self.lu, self.n, self.order, self.row_scale = lu, n, order, row_scale
         self._m = lu.shape[0]
         # the plain case (not bordered, pre-ordered or scaled) is SuperLU's own solve, nothing around it
         if self._m == n and order is None and row_scale is None:
             self.solve = lu.solve
+        if order is not None:
+            # the pre-ordered solve as two gathers: the right-hand side (scaled) in the order, and
+            # the first n unknowns back from it (inverse: argsort(order)[:n], kept by a Factoriser)
+            self._inverse = np.argsort(order)[:n] if inverse is None else inverse
+            self._scale_ordered = None if row_scale is None else row_scale[order]
+            self.solve = self._solve_ordered
 
     @property
     def shape(self) -> tuple[int, int]:
         return (self.n, self.n)
+
+    def _solve_ordered(self, rhs: np.ndarray) -> np.ndarray:
+        b = np.zeros(self._m)
+        b[: self.n] = rhs
+        b = b[self.order]
+        if self._scale_ordered is not None:
+            b *= self._scale_ordered
+        return self.lu.solve(b)[self._inverse]
 
     @property
     def fill(self) -> int:
@@ -230,9 +244,41 @@ class BorderedAssembly:
     def __call__(self) -> LowRankUpdate:
         """The matrix of the triplets' current ``values[:n_entries]``."""
         data = np.bincount(self._inverse, weights=self.values, minlength=len(self._indices))
-        system = with_data(self._system_template, data)
-        parts = [with_data(t, data[where]) for t, (where, _, _) in zip(self._templates, (self._base, self._left, self._right))]
-        return LowRankUpdate(*parts, system=system)
+        return _AssembledUpdate(self, data)
+
+    def parts(self, data: np.ndarray) -> tuple:
+        """(base, left, right) of the bordered system's values ``data``."""
+        return tuple(with_data(t, data[where])
+                     for t, (where, _, _) in zip(self._templates, (self._base, self._left, self._right)))
+
+
+class _AssembledUpdate(LowRankUpdate):
+    """A :class:`BorderedAssembly`'s matrix: its bordered system at once (what a factorisation
+    reads), ``base``, ``left`` and ``right`` gathered from it when first asked for."""
+
+    def __init__(self, assembly: BorderedAssembly, data: np.ndarray):
+        object.__setattr__(self, "system", with_data(assembly._system_template, data))
+        object.__setattr__(self, "_assembly", assembly)
+
+    def _part(self, i: int) -> sp.csc_matrix:
+        parts = self.__dict__.get("_parts")
+        if parts is None:
+            parts = self._assembly.parts(self.system.data)
+            object.__setattr__(self, "_parts", parts)
+        return parts[i]
+
+    base = property(lambda self: self._part(0))
+    left = property(lambda self: self._part(1))
+    right = property(lambda self: self._part(2))
+
+    @property
+    def shape(self) -> tuple[int, int]:
+        n = self._assembly.n
+        return (n, n)
+
+    @property
+    def rank(self) -> int:
+        return self._assembly.k
 
 
 class KeptTriplets:
@@ -441,6 +487,7 @@ class Factoriser:
         self._pattern: sp.csc_matrix | None = None  # the union pattern (values unused)
         self._keys: np.ndarray | None = None
         self._order: np.ndarray | None = None
+        self._inverse: np.ndarray | None = None  # argsort(order)[:n]: the solves' gather back
         self._permuted = None  # (where each entry of the pattern goes, its row, indices, indptr) under the order
         self._seen = (None, None)  # index arrays last found equal to the pattern's
         self._scaling: _RowScaling | None = None  # the row scaling's pattern work, for the pattern
@@ -459,6 +506,7 @@ class Factoriser:
         self._pattern = sp.csc_matrix((np.zeros(len(indices)), np.asarray(indices), np.asarray(indptr)), shape=(m, m))
         self._keys = _keys(self._pattern)
         self._order = np.asarray(order)
+        self._inverse = None
         self._permuted = None
         self._seen, self._scaling = (None, None), None
 
@@ -493,12 +541,17 @@ class Factoriser:
         """``(R a)[q][:, q]`` for the kept order q and the row factors rho, by a gather of a's values
         (the pattern's permutation is worked out once)."""
         if self._permuted is None:
-            q = self._order
-            tag = sp.csc_matrix((np.arange(1.0, a.nnz + 1.0), a.indices, a.indptr), shape=a.shape)
-            b = tag[q][:, q].tocsc()
-            b.sort_indices()
-            where = b.data.astype(np.int64) - 1
-            indices, indptr = b.indices.astype(np.intc), b.indptr.astype(np.intc)
+            # entry (r, c) of a goes to (inv[r], inv[c]), inv the inverse of q; sorted by the new
+            # (column, row): where each entry of the permuted matrix comes from
+            q, m = self._order, a.shape[0]
+            inv = np.empty(m, dtype=np.int64)
+            inv[q] = np.arange(m)
+            col = inv[np.repeat(np.arange(m), np.diff(a.indptr))]
+            row = inv[np.asarray(a.indices)]
+            where = np.argsort(col * m + row, kind="stable")
+            indices = row[where].astype(np.intc)
+            indptr = np.zeros(m + 1, dtype=np.intc)
+            np.cumsum(np.bincount(col, minlength=m), out=indptr[1:])
             template = sp.csc_matrix((np.zeros(len(where)), indices, indptr), shape=a.shape)
             template.has_canonical_format = True
             self._permuted = (where, np.asarray(a.indices)[where], indices, indptr, template)
@@ -520,7 +573,9 @@ class Factoriser:
         else:
             rho = row_scale(a)
         if self._order is not None and same:
-            return Factor(_splu(self._pre_ordered(a, rho), _PRE_ORDERED), n, self._order, rho)
+            if self._inverse is None or len(self._inverse) != n:
+                self._inverse = np.argsort(self._order)[:n]
+            return Factor(_splu(self._pre_ordered(a, rho), _PRE_ORDERED), n, self._order, rho, self._inverse)
         if rho is not None:  # the same pattern, rows scaled (explicit zeros kept)
             a = sp.csc_matrix((a.data * rho[a.indices], a.indices, a.indptr), shape=a.shape)
         lu = _splu(a, SPLU_OPTIONS)
@@ -533,6 +588,7 @@ class Factoriser:
         # SuperLU factorises Pr A Pc; symmetric pre-ordering with the inverse of perm_c
         # reproduces its column order (and so its fill)
         self._order = np.argsort(lu.perm_c)
+        self._inverse = None
         return Factor(lu, n, None, rho)
 
 
