@@ -512,12 +512,14 @@ class _CompiledSurfaces:
         if rows is None:
             rows = self.kept[0] = np.concatenate([term.surface_parameters(f, centres[f], context)
                                                   for term, f in self.groups])
+            # each group's view of the rows and how it rewrites them (update_surface_parameters or None)
+            views, start = [], 0
+            for term, f in self.groups:
+                views.append((term, f, rows[start:start + f.size], getattr(term, "update_surface_parameters", None)))
+                start += f.size
+            self.kept.append(views)
             return rows
-        start = 0
-        for term, f in self.groups:
-            view = rows[start:start + f.size]
-            start += f.size
-            update = getattr(term, "update_surface_parameters", None)
+        for term, f, view, update in self.kept[1]:
             if update is None:
                 view[:] = term.surface_parameters(f, centres[f], context)
             else:

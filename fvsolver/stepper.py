@@ -34,6 +34,7 @@ REFACTOR_CONTRACTION = 0.3
 # a step whose error estimate at a contracting Newton iterate exceeds this many tolerances is rejected
 # there, before its Newton loop ends
 EARLY_REJECTION = 2.0
+_EPS = float(np.finfo(float).eps)
 
 
 @dataclass
@@ -163,6 +164,7 @@ class TimeStepper:
         self._dts: list[float] = []           # newest first
         self._inflow: dict[str, float] = {g: 0.0 for g in self._groups}
         self._lu_cache: dict = {}
+        self._old_contents = None  # (m at a step's start, each total's content sum |m| there)
         self._factorise = Factoriser()  # orders the Jacobian's pattern once per run
         self._f0: np.ndarray | None = None
         self._landing: float | None = None
@@ -483,10 +485,8 @@ class TimeStepper:
                 break
             if lu is None or not p.constant_jacobian and it > 0 and (rate_poor or clipped or fast_changing(y)):
                 lu = self._lu(a0, dt, dm, ev, p.constant_jacobian)
-            delta = solve(lu, -residual)
+            delta = solve(lu, -residual)  # (finite: solve raises SolverError otherwise)
             self.counters.newton_iterations += 1
-            if not np.all(np.isfinite(delta)):
-                return None
             clipped = False
             if project is not None:
                 before = y.copy()
@@ -556,11 +556,15 @@ class TimeStepper:
         if inflow is None:
             inflow = {g: ev.inflow(g) for g in self._groups}
             self._gross = {g: ev.gross(g) for g in self._groups}
+        old = h.m[0]
+        kept = self._old_contents
+        if kept is None or kept[0] is not old:  # each total's content at the step's start, once a step
+            kept = self._old_contents = (old, {g: float(np.abs(old[sl]).sum()) for g, sl in self._groups.items()})
         w_new, errors = {}, {}
         at_round_off = True
         for g, sl in self._groups.items():
             w_new[g] = (dt * inflow[g] + a2 * self._inflow[g]) / a0
-            stored = float((m_new[sl] - h.m[0][sl]).sum())  # differences first: no cancellation of totals
+            stored = float((m_new[sl] - old[sl]).sum())  # differences first: no cancellation of totals
             content = float(np.abs(m_new[sl]).sum())
             # relative to the change, the gross exchange, or the round-off level of the total itself
             scale = max(abs(stored), dt * self._gross[g], 1e-13 * content, self._balance_floor[g], 1e-300)
@@ -569,8 +573,7 @@ class TimeStepper:
             # the change of a total is known only to the round-off of the contents it is the difference
             # of: a step whose change is a few ulps of the total (a cap holding grams that loses
             # nanograms) balances no better than that, however many iterations follow
-            at_round_off = at_round_off and missing <= ROUND_OFF_ULPS * np.finfo(float).eps * (
-                content + float(np.abs(h.m[0][sl]).sum()))
+            at_round_off = at_round_off and missing <= ROUND_OFF_ULPS * _EPS * (content + kept[1][g])
         self._at_round_off = at_round_off
         return w_new, errors
 
