@@ -395,7 +395,7 @@ def _row_factors(m: int, weak, colmax, diag, reach):
         cap[reach > 0.0] = 1.0 / reach[reach > 0.0]
     rho = np.maximum(np.minimum(want, cap), 1.0)
     rho[~np.isfinite(rho)] = 1.0
-    return rho if np.any(rho > 1.0) else None
+    return rho if (rho > 1.0).any() else None
 
 
 class _RowScaling:

@@ -445,7 +445,7 @@ class TimeStepper:
         fast_changing = getattr(p, "jacobian_changes_fast", lambda y: False)
         # Newton starts from the extrapolated predictor (projected into the domain): its first
         # update is then of the size of the step's error instead of the step's change
-        start = opt.adaptive and self._newton_from_predictor(order) and np.all(np.isfinite(y_pred))
+        start = opt.adaptive and self._newton_from_predictor(order) and bool(np.isfinite(y_pred).all())
         y = y_pred.copy() if start else h.y[0].copy()
         if project is not None:
             project(y)
@@ -501,7 +501,7 @@ class TimeStepper:
                     delta = y - before  # the change actually made
             else:
                 y += delta
-            norm = float(np.max(np.abs(delta) / self._scale))
+            norm = float((np.abs(delta) / self._scale).max())
             rate_poor = norm > REFACTOR_CONTRACTION * prev_norm
             prev_before, prev_norm = prev_norm, norm
             if p.exact_jacobian:
@@ -521,16 +521,16 @@ class TimeStepper:
             if weight is not None and it >= 1 and not settled:
                 contraction = norm / prev_before
                 settled = (contraction < 0.5 and
-                           float(np.max(np.abs(delta) * weight)) * contraction / (1.0 - contraction) <= 1.0)
-            if not np.all(np.isfinite(y)):
+                           float((np.abs(delta) * weight).max()) * contraction / (1.0 - contraction) <= 1.0)
+            if not np.isfinite(y).all():
                 return None
             if weight is not None and not settled and (it == 0 or contraction < 0.5):
                 # an iterate already this far from the predictor (the corrections left are a small
                 # fraction of the update just made: contraction < 0.5, or after the first update,
                 # whose contraction is not known yet, twice as far) is rejected without converging
                 # it first; the retake's step follows from this estimate
-                err = float(np.max(est_factor * np.abs(y - y_pred)
-                                   / (opt.tolerance * self._scale + opt.relative_tolerance * np.abs(y))))
+                err = float((est_factor * np.abs(y - y_pred)
+                             / (opt.tolerance * self._scale + opt.relative_tolerance * np.abs(y))).max())
                 if err > (2.0 * EARLY_REJECTION if it == 0 else EARLY_REJECTION):
                     return y, None, err, None, order, None, a0
             ev = p.evaluate(y, t_new)
@@ -546,7 +546,7 @@ class TimeStepper:
         err = 0.0
         if opt.adaptive:
             est = est_factor * np.abs(y - y_pred)
-            err = float(np.max(est / (opt.tolerance * self._scale + opt.relative_tolerance * np.abs(y))))
+            err = float((est / (opt.tolerance * self._scale + opt.relative_tolerance * np.abs(y))).max())
         return y, m_new, err, ev, order, w_new, a0
 
     def _balance(self, m_new, ev, dt, a0, a2, inflow=None):

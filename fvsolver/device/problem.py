@@ -220,6 +220,11 @@ class DeviceProblem:
         self._wall_weight = self.inner_area / max(float(self.inner_area.sum()), 1e-300)
         area_o = mesh.boundary_areas[self.outer_faces]
         self._outer_weight = area_o / area_o.sum() if area_o.size else area_o
+        # the outside faces' groups of the transfer coupling: (faces, their cells, their areas, cap or not)
+        self._cap_face_cells = mesh.boundary_cell[self.cap_faces]
+        self._transfer_groups = tuple((faces, mesh.boundary_cell[faces], mesh.boundary_areas[faces], cap)
+                                      for faces, cap in ((self.cap_faces, True), (self.head_room_faces, False))
+                                      if faces.size)
         self._lumped_rows = np.array([self.i_mv, self.i_w, self.i_tb] + ([self.i_mp] if body is not None else []))
         if body is not None:
             self._pool_rows = np.array([self.i_mv, self.i_mp, self.i_tb])
@@ -269,7 +274,7 @@ class DeviceProblem:
         Newton needs it afresh every iteration."""
         cr = self.wall_term.film_reference
         c = y[self.i_c]
-        return bool(np.any((c > 1e-2 * cr) & (c < 1e2 * cr)))
+        return bool(((c > 1e-2 * cr) & (c < 1e2 * cr)).any())
 
     @property
     def nonnegative(self) -> np.ndarray:
@@ -529,39 +534,46 @@ class DeviceProblem:
         add = kept.add
         add(self._conduction_pattern[1], jtt.indices, jtt.data)
         add(self._cells, self._cells, -dt * x["dsensible"])
-        # condensing inner faces
+        # condensing inner faces (the common factors formed once, in the order the products take them)
         b = self.inner
-        P = mesh.boundary_cell[b]
+        P = self._inner_cells
         kap, g1 = c.surface_conductance[b], c.surface_derivative[b]
         area = self.inner_area
-        tau = kap / (kap - g1)
+        den = kap - g1
+        tau = kap / den
         terms = c.surface_terms
         lat = terms[b, ks.LATENT] if terms is not None else self.wall_term.latent_heat(c.surface_temperature[b])
         vap = self.spec.vapour
         dp_dm = UNIVERSAL_GAS_CONSTANT * ev.context["vapour"]["temperature"] / (vap.fluid.molar_mass * vap.volume)
-        dts_dp = lat * x["dj_dp"] / (kap - g1)
-        dts_dc = lat * x["dj_dc"] / (kap - g1)
-        dJ_dT = x["dj_dt"] * tau
-        dJ_dm = (x["dj_dp"] + x["dj_dt"] * dts_dp) * dp_dm
-        dJ_dc = x["dj_dc"] + x["dj_dt"] * dts_dc
-        add(P, self.i_mv, -dt * area * kap * dts_dp * dp_dm)
-        add(P, self.i_c, -dt * area * kap * dts_dc)
-        add(self.i_mv, P, dt * area * dJ_dT)
-        add(self.i_mv, self.i_c, dt * area * dJ_dc)
-        add(self.i_c, P, -dt * area * dJ_dT)
-        add(self.i_c, self.i_mv, -dt * area * dJ_dm)
-        add(self.i_c, self.i_c, alpha0 * area - dt * area * dJ_dc)
+        dj_dt, dj_dp, dj_dc = x["dj_dt"], x["dj_dp"], x["dj_dc"]
+        lat_dp = lat * dj_dp
+        dts_dp = lat_dp / den
+        dts_dc = lat * dj_dc / den
+        dJ_dT = dj_dt * tau
+        dJ_dm = (dj_dp + dj_dt * dts_dp) * dp_dm
+        dJ_dc = dj_dc + dj_dt * dts_dc
+        dt_area = dt * area
+        out_area = -dt_area  # -dt * area, exactly
+        out_kap = out_area * kap
+        flow_dc = dt_area * dJ_dc
+        add(P, self.i_mv, out_kap * dts_dp * dp_dm)
+        add(P, self.i_c, out_kap * dts_dc)
+        add(self.i_mv, P, dt_area * dJ_dT)
+        add(self.i_mv, self.i_c, flow_dc)
+        add(self.i_c, P, out_area * dJ_dT)
+        add(self.i_c, self.i_mv, out_area * dJ_dm)
+        add(self.i_c, self.i_c, alpha0 * area - flow_dc)
         # the vapour temperature (the wall cells' mean) sets p_v = m_v R T_v / V: a rank-one coupling
         # of every wall face to every wall cell, u w^T with w the wall cells' area weights, which
         # fvsolver.linear factorises through the bordered system instead of forming the dense block
         p_v, t_v = ev.context["vapour"]["pressure"], ev.context["vapour"]["temperature"]
         per_tv = p_v / t_v  # dp_v / dT_v at fixed m_v (the flux sees T_v through p_v only)
-        dts_dtv = lat * x["dj_dp"] * per_tv / (kap - g1)
-        dJ_dtv = x["dj_dp"] * per_tv + x["dj_dt"] * dts_dtv
+        dts_dtv = lat_dp * per_tv / den
+        dJ_dtv = dj_dp * per_tv + dj_dt * dts_dtv
         u = self.n + 0  # the bordered system's column (and row) of the first coupling
-        add(P, u, -dt * area * kap * dts_dtv)
-        add(self.i_c, u, -dt * area * dJ_dtv)
-        add(self.i_mv, u, dt * float(np.sum(area * dJ_dtv)))
+        add(P, u, out_kap * dts_dtv)
+        add(self.i_c, u, out_area * dJ_dtv)
+        add(self.i_mv, u, dt * float((area * dJ_dtv).sum()))
         if self.body is not None:
             # the joined vapour spaces' flow G = k (p_sat(T_p) - p_v) sees T_v through p_v too (zero
             # while the device stands)
@@ -569,7 +581,7 @@ class DeviceProblem:
             add(self._pool_rows, u, (-dt * dg_dtv, dt * dg_dtv, dt * dg_dtv * x["leaving_enthalpy"]))
         add(u, P, self._wall_weight)
         lumped = np.zeros(self.n - n)
-        lumped[0] = alpha0 + dt * float(np.sum(area * dJ_dm))
+        lumped[0] = alpha0 + dt * float((area * dJ_dm).sum())
         # the water's sensible enthalpy in every cap cell follows the total evaporation, which
         # follows the temperatures of the cells under the cap's faces: a second
         self._evaporation_coupling(dt, ev, add)
@@ -616,12 +628,12 @@ class DeviceProblem:
     def _evaporation_coupling(self, dt: float, ev: DeviceEvaluation, add) -> None:
         """The Jacobian's update column (n + 1) of the water's sensible enthalpy in the cap cells
         through the total evaporation E = sum A m_e(T_s), T_s eliminated per face."""
-        c, mesh = ev.conduction, self.mesh
+        c = ev.conduction
         faces = self.cap_faces
         col = self.n + 1
         if faces.size:
             kap, g1 = c.surface_conductance[faces], c.surface_derivative[faces]
-            add(col, mesh.boundary_cell[faces], mesh.boundary_areas[faces] * ev.extras["dme_dt"] * kap / (kap - g1))
+            add(col, self._cap_face_cells, self._cap_area * ev.extras["dme_dt"] * kap / (kap - g1))
             add(self.cap_cells, col, -dt * ev.extras["sensible_per_evaporation"][self.cap_cells])
         else:
             add(self.cap_cells, col, 0.0)
@@ -632,14 +644,12 @@ class DeviceProblem:
         ctx, c = ev.context, ev.conduction
         dh, dhm = self._transfer_derivatives(ctx["cap"]["surface_mean"], ctx["cap"]["h"], ctx["cap"]["h_m"])
         fixed = dh == 0.0 and dhm == 0.0
-        mesh, room = self.mesh, self.spec.room
+        room = self.spec.room
         col = self.n + 2
-        add(col, mesh.boundary_cell[self.outer_faces], self._outer_weight)
-        for faces, cap in ((self.cap_faces, True), (self.head_room_faces, False)):
-            if faces.size == 0:
-                continue
+        add(col, self._outer_cells_of_faces, self._outer_weight)
+        for faces, cells_of_faces, area, cap in self._transfer_groups:
             if fixed:
-                add(mesh.boundary_cell[faces], col, 0.0)
+                add(cells_of_faces, col, 0.0)
                 if cap:
                     add(self.cap_cells, col, 0.0)
                     if self.spec.cap_water.mode == "charge":
@@ -654,11 +664,11 @@ class DeviceProblem:
                 lat = (c.surface_terms[faces, ks.LATENT] if c.surface_terms is not None
                        else water_latent_heat(t_s))
                 dq = dq - lat * m_e * dhm / h_m
-            area = mesh.boundary_areas[faces]
-            add(mesh.boundary_cell[faces], col, -dt * area * kap * dq / (kap - g1))
+            den = kap - g1
+            add(cells_of_faces, col, -dt * area * kap * dq / den)
             if cap:
-                dts = dq / (kap - g1)
-                devap = float(np.sum(area * (ev.evaporation * dhm / ctx["cap"]["h_m"] + ev.extras["dme_dt"] * dts)))
+                dts = dq / den
+                devap = float((area * (ev.evaporation * dhm / ctx["cap"]["h_m"] + ev.extras["dme_dt"] * dts)).sum())
                 cells = self.cap_cells
                 add(cells, col, -dt * ev.extras["sensible_per_evaporation"][cells] * devap)
                 if self.spec.cap_water.mode == "charge":
