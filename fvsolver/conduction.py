@@ -179,6 +179,7 @@ class ConductionProblem:
         self._fixed_per_cell = {}
         self._uniform_kept = {}  # attribute: (the materials' numbers, the per-cell array filled from them)
         self._capacity_kept = None  # (rho c per cell, V rho c) of the last uniform rho c
+        self._kappa_kept = None  # (k, k_P / delta of the boundary faces) of the last conductivities
         self._boundary_cells = np.unique(mesh.boundary_cell)
         self._surface_guess: np.ndarray | None = None
         self._correction_cache = None
@@ -325,7 +326,12 @@ class ConductionProblem:
         the gradients, is ``_offset_correction``)."""
         mesh, st = self.mesh, self.stencil
         bc = mesh.boundary_cell
-        kappa = k[bc] / st.boundary_distance
+        kept = self._kappa_kept
+        if kept is not None and kept[0] is k:  # the same kept conductivities (never written to)
+            kappa = kept[1]
+        else:
+            kappa = k[bc] / st.boundary_distance
+            self._kappa_kept = (k, kappa)
         # the tangential offset (non-orthogonal boundary cells) is corrected on fixed-temperature
         # faces; on flux faces the surface balance is taken at the cell's own temperature, so the
         # surface solve never waits on the gradients (first order in the offset there)

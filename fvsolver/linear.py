@@ -420,18 +420,25 @@ class _RowScaling:
         self.row_counts = np.bincount(self.rows, minlength=m)
         self.row_ptr = np.concatenate([[0], np.cumsum(self.row_counts)])
         self._weak = None  # the weak rows of the last call, and their entries (below)
+        # every column has its diagonal (a Jacobian's, a bordered system's -I): the diagonals are one gather
+        self.full_diag = bool(np.array_equal(self.diag_col, np.arange(m)))
+        self.any_empty = bool(self.col_empty.any())
 
     def __call__(self, data: np.ndarray) -> np.ndarray | None:
         m = self.m
         if len(data) == 0:
             return None
         mag = np.abs(data)
-        diag = np.zeros(m)
-        diag[self.diag_col] = mag[self.diag_at]
+        if self.full_diag:
+            diag = mag[self.diag_at]
+        else:
+            diag = np.zeros(m)
+            diag[self.diag_col] = mag[self.diag_at]
         off = mag.copy()
         off[self.diag_at] = 0.0  # the column maxima of the other entries (magnitudes, so 0 is neutral)
         colmax = np.maximum.reduceat(off, self.col_start)
-        colmax[self.col_empty] = 0.0
+        if self.any_empty:
+            colmax[self.col_empty] = 0.0
         weak = (colmax > diag) & (diag > 0.0)
         if not weak.any():
             return None
@@ -450,9 +457,19 @@ class _RowScaling:
         with np.errstate(over="ignore"):
             # how large a weak row's entries are against the diagonals of their columns
             ratio = np.divide(mag[entries], below, out=np.zeros(len(entries)), where=sel)
-            reach = np.zeros(m)
-            reach[rows] = np.maximum.reduceat(ratio, starts)
-        return _row_factors(m, weak, colmax, diag, reach)
+            reach = np.maximum.reduceat(ratio, starts)
+            # _row_factors on the weak rows alone: every other row's wanted lift is 1, its factor 1
+            want = colmax[rows] / diag[rows]
+            cap = np.full(len(rows), np.inf)
+            reached = reach > 0.0
+            cap[reached] = 1.0 / reach[reached]
+        lift = np.maximum(np.minimum(want, cap), 1.0)
+        lift[~np.isfinite(lift)] = 1.0
+        if not (lift > 1.0).any():
+            return None
+        rho = np.ones(m)
+        rho[rows] = lift
+        return rho
 
 
 def factorise(matrix: sp.spmatrix | LowRankUpdate) -> Factor:

@@ -466,7 +466,10 @@ class TimeStepper:
         self.counters.evaluations += 1
         m, dm = p.capacity(y)
         for it in range(opt.max_newton_iterations + 1):
-            residual = a0 * m + hist - dt * ev.rate
+            residual = a0 * m + hist
+            # the Newton right-hand side -(residual - dt F), formed as dt F - residual (the same numbers)
+            rhs = dt * ev.rate
+            rhs -= residual
             if settled:
                 # the conserved totals must balance to round-off at the state the step ends on: the
                 # evaluation there is the one the next iteration would start from, so an iteration
@@ -485,12 +488,12 @@ class TimeStepper:
                 break
             if lu is None or not p.constant_jacobian and it > 0 and (rate_poor or clipped or fast_changing(y)):
                 lu = self._lu(a0, dt, dm, ev, p.constant_jacobian)
-            delta = solve(lu, -residual)  # (finite: solve raises SolverError otherwise)
+            delta = solve(lu, rhs)  # (finite: solve raises SolverError otherwise)
             self.counters.newton_iterations += 1
             clipped = False
             if project is not None:
-                before = y.copy()
-                y += delta
+                before = y
+                y = y + delta
                 free = y.copy()
                 project(y)
                 # where the domain cut an update short, the Jacobian of the old iterate has misled it

@@ -443,8 +443,9 @@ class DeviceProblem:
             per_evaporation[cells] = -v * de_ds / self.pore_water_capacity
         else:
             # the reservoir replaces what evaporates, with water at its own temperature
-            per_evaporation[cells] = self._reservoir_share * (self.spec.cap_water.reservoir_temperature - t_cap)
-            out[cells] = evaporation_total * per_evaporation[cells]
+            per_cell = self._reservoir_share * (self.spec.cap_water.reservoir_temperature - t_cap)
+            per_evaporation[cells] = per_cell
+            out[cells] = evaporation_total * per_cell
             dout[cells] = -evaporation_total * self._reservoir_share
         self._per_evaporation = per_evaporation
         return out, dout
