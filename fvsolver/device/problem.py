@@ -592,15 +592,17 @@ class DeviceProblem:
         # the cap's water
         if self.spec.cap_water.mode == "charge":
             bc = self.cap_faces
-            Pc = mesh.boundary_cell[bc]
+            Pc = self._cap_face_cells
             kc, gc = c.surface_conductance[bc], c.surface_derivative[bc]
-            ac = mesh.boundary_areas[bc]
+            ac = self._cap_area
             s = float(ev.context["cap"]["saturation"])
-            cw = self.spec.cap_water
             eps = 1e-6
-            dw_ds = float((porous.drying_rate_factor(min(s + eps, 1.0), cw.critical_saturation, cw.residual_saturation)
-                           - porous.drying_rate_factor(max(s - eps, 0.0), cw.critical_saturation,
-                                                       cw.residual_saturation)) / (min(s + eps, 1.0) - max(s - eps, 0.0)))
+            # porous.drying_rate_factor's central difference, on plain floats as _context takes it (the
+            # saturations were checked at set-up, the context refused a NaN)
+            s_r, width = self._wet_slope
+            s_up, s_down = min(s + eps, 1.0), max(s - eps, 0.0)
+            dw_ds = ((min(max((s_up - s_r) / width, 0.0), 1.0) - min(max((s_down - s_r) / width, 0.0), 1.0))
+                     / (s_up - s_down))
             dw_dW = dw_ds / self.pore_water_capacity
             wet = max(ev.context["cap"]["wet_fraction"], 1e-12)
             dq_dw = self.cap_term.dheat_flux_dwet(c.surface_temperature[bc], ev.context)
@@ -610,12 +612,13 @@ class DeviceProblem:
             dME_dW = dme_dw * dw_dW + x["dme_dt"] * dts_dW
             add(Pc, self.i_w, -dt * ac * kc * dts_dW)
             add(self.i_w, Pc, dt * ac * dME_dT)
-            lumped[self.i_w - n] = alpha0 + dt * float(np.sum(ac * dME_dW))
+            evap_dW = float((ac * dME_dW).sum())
+            lumped[self.i_w - n] = alpha0 + dt * evap_dW
             cells = self.cap_cells
             de_dW = self.cap_material.denergy_dsaturation(x["T"][cells]) / self.pore_water_capacity
-            add(cells, self.i_w, alpha0 * mesh.cell_volumes[cells] * de_dW)
+            add(cells, self.i_w, alpha0 * self._cap_cell_volumes * de_dW)
             # the water's sensible enthalpy follows the total evaporation, which follows W
-            add(cells, self.i_w, -dt * x["sensible_per_evaporation"][cells] * float(np.sum(ac * dME_dW)))
+            add(cells, self.i_w, -dt * x["sensible_per_evaporation"][cells] * evap_dW)
         else:
             lumped[self.i_w - n] = alpha0
         bulb = self.spec.second_bulb

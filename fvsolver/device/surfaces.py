@@ -126,8 +126,9 @@ class EvaporativeCap:
 
     def dheat_flux_dwet(self, T_s, context) -> np.ndarray:
         """dq / d(wet_fraction) at fixed T_s."""
-        rho, _ = saturated_water_vapour_density(T_s)
-        return -water.latent_heat(_water_range(T_s)) * context["cap"]["h_m"] * (rho - self.vapour_density_air)
+        t = _water_range(T_s)
+        rho = water.MOLAR_MASS / UNIVERSAL_GAS_CONSTANT * water.saturation_pressure(t) / t  # (no slope needed)
+        return -water.latent_heat(t) * context["cap"]["h_m"] * (rho - self.vapour_density_air)
 
 
 @dataclass(frozen=True)
