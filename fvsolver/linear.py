@@ -214,29 +214,17 @@ class BorderedAssembly:
         unique, self._inverse = np.unique(cols * m + rows, return_inverse=True)
         self._inverse = self._inverse.ravel()
         col, row = np.divmod(unique, m)
-
-        def pattern(select, major, minor, n_major):
-            """indices and indptr (int32, SuperLU's own) of the entries ``select`` ordered by (major, minor)."""
-            where = select[np.lexsort((minor[select], major[select]))]
-            indptr = np.zeros(n_major + 1, dtype=np.intc)
-            np.cumsum(np.bincount(major[where], minlength=n_major), out=indptr[1:])
-            return where, minor[where].astype(np.intc), indptr
-
-        everything = np.arange(len(unique))
-        _, self._indices, self._indptr = pattern(everything, col, row, m)
-        upper, low = row < n, col < n
-        self._base = pattern(np.flatnonzero(upper & low), col, row, n)
-        self._left = pattern(np.flatnonzero(upper & ~low), col - n, row, k)
-        self._right = pattern(np.flatnonzero(~upper & low), row - n, col, k)  # W[c, r - n] = system[r, c]
+        # the unique keys are sorted by (column, row): the system's CSC pattern as they stand
+        # (indices and indptr int32, SuperLU's own)
+        self._indices = row.astype(np.intc)
+        self._indptr = np.zeros(m + 1, dtype=np.intc)
+        np.cumsum(np.bincount(col, minlength=m), out=self._indptr[1:])
+        self._positions = (col, row)  # for the parts' patterns, worked out when first asked for
+        self._parts_pattern = None
         self._shape = (m, m)
-        self._templates = [sp.csc_matrix((np.zeros(len(where)), indices, indptr), shape=shape)
-                           for (where, indices, indptr), shape in ((self._base, (n, n)), (self._left, (n, k)),
-                                                                   (self._right, (n, k)))]
         self._system_template = sp.csc_matrix((np.zeros(len(self._indices)), self._indices, self._indptr),
                                               shape=self._shape)
         self._system_template.has_canonical_format = True
-        for t in self._templates:
-            t.has_canonical_format = True
         # the values, written by the caller in the order of the triplets; the -I block's are fixed
         self.values = np.zeros(len(rows))
         self.values[self.n_entries:] = -1.0
@@ -248,8 +236,29 @@ class BorderedAssembly:
 
     def parts(self, data: np.ndarray) -> tuple:
         """(base, left, right) of the bordered system's values ``data``."""
-        return tuple(with_data(t, data[where])
-                     for t, (where, _, _) in zip(self._templates, (self._base, self._left, self._right)))
+        return tuple(with_data(t, data[where]) for t, where in self._part_patterns())
+
+    def _part_patterns(self) -> list:
+        """(template, where each entry comes from in the system's data) of base, left and right."""
+        if self._parts_pattern is None:
+            n, k = self.n, self.k
+            col, row = self._positions
+
+            def pattern(select, major, minor, n_major, shape):
+                """A template of the entries ``select`` ordered by (major, minor), and ``select`` so ordered."""
+                where = select[np.lexsort((minor[select], major[select]))]
+                indptr = np.zeros(n_major + 1, dtype=np.intc)
+                np.cumsum(np.bincount(major[where], minlength=n_major), out=indptr[1:])
+                template = sp.csc_matrix((np.zeros(len(where)), minor[where].astype(np.intc), indptr), shape=shape)
+                template.has_canonical_format = True
+                return template, where
+
+            upper, low = row < n, col < n
+            self._parts_pattern = [pattern(np.flatnonzero(upper & low), col, row, n, (n, n)),
+                                   pattern(np.flatnonzero(upper & ~low), col - n, row, k, (n, k)),
+                                   # W[c, r - n] = system[r, c]
+                                   pattern(np.flatnonzero(~upper & low), row - n, col, k, (n, k))]
+        return self._parts_pattern
 
 
 class _AssembledUpdate(LowRankUpdate):
