@@ -188,3 +188,30 @@ def test_untagged_cells_are_refused():
             "planar", m.nodes, m.cells, [0, 0, 0, 1], ("solid",), m.boundary_nodes,
             np.asarray(m.patch_names, dtype=object)[m.boundary_patch].tolist(),
         )
+
+
+@pytest.mark.parametrize("binned", [True, False])
+def test_close_pairs_and_merged_nodes_agree_with_scipy_k_d_tree_and_components(monkeypatch, binned):
+    """Node merging's pairs and groups against scipy's cKDTree.query_pairs and
+    csgraph.connected_components (a general-purpose reference) on random clouds with exact and
+    near duplicates, tolerances from round-off to chains of neighbours; both of close_pairs'
+    paths (numpy bins up to BINNED_PAIRS_UP_TO points, the k-d tree beyond)."""
+    from scipy.sparse import coo_matrix
+    from scipy.sparse.csgraph import connected_components
+    from scipy.spatial import cKDTree
+
+    from fvsolver.mesh import core
+
+    monkeypatch.setattr(core, "BINNED_PAIRS_UP_TO", 10**9 if binned else 0)
+    rng = np.random.default_rng(7)
+    for _ in range(60):
+        n = int(rng.integers(2, 300))
+        points = rng.random((n, 2)) * rng.choice([1e-3, 1.0, 50.0])
+        copies = rng.integers(0, n, int(rng.integers(0, n)))
+        points = np.vstack([points, points[copies] + rng.normal(0.0, 1e-12, (len(copies), 2))])
+        tol = float(rng.choice([1e-13, 1e-9, 1e-6, 0.01, 0.05])) * float(np.ptp(points, axis=0).max())
+        expected = cKDTree(points).query_pairs(tol, output_type="ndarray").reshape(-1, 2)
+        expected = np.unique(expected, axis=0) if len(expected) else expected
+        assert np.array_equal(core.close_pairs(points, tol), expected)
+        graph = coo_matrix((np.ones(len(expected)), (expected[:, 0], expected[:, 1])), shape=(len(points),) * 2)
+        assert np.array_equal(core.merged_labels(points, tol), connected_components(graph, directed=False)[1])
