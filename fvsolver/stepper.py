@@ -499,7 +499,7 @@ class TimeStepper:
                 # where the domain cut an update short, the Jacobian of the old iterate has misled it
                 # (a drying face's inventory row scales with its flux): the next iteration factorises
                 # afresh
-                clipped = not np.array_equal(y, free)
+                clipped = not (y == free).all()
                 if clipped:
                     delta = y - before  # the change actually made
             else:
