@@ -164,6 +164,7 @@ class TimeStepper:
         self._dts: list[float] = []           # newest first
         self._inflow: dict[str, float] = {g: 0.0 for g in self._groups}
         self._lu_cache: dict = {}
+        self._absolute_tolerance = None  # tolerance * scale, for _tolerance
         self._old_contents = None  # (m at a step's start, each total's content sum |m| there)
         self._factorise = Factoriser()  # orders the Jacobian's pattern once per run
         self._f0: np.ndarray | None = None
@@ -381,7 +382,7 @@ class TimeStepper:
             f1 = self._slope(probe, self.t + h)
         except (SolverError, FvsolverError, FloatingPointError):
             return dt
-        scale = opt.tolerance * self._scale + opt.relative_tolerance * np.abs(self.y)
+        scale = self._tolerance(self.y)
         curvature = float(np.max(np.abs(f1 - f0) / (h * scale)))
         if not math.isfinite(curvature) or curvature <= 0.0:
             return dt
@@ -454,7 +455,7 @@ class TimeStepper:
         weight = None
         small = opt.tolerance if opt.adaptive else 0.0
         if opt.adaptive:
-            weight = 1.0 / (opt.newton_fraction * (opt.tolerance * self._scale + opt.relative_tolerance * np.abs(h.y[0])))
+            weight = 1.0 / (opt.newton_fraction * self._tolerance(h.y[0]))
         lu = None
         norms = []
         prev_norm = math.inf
@@ -504,7 +505,8 @@ class TimeStepper:
                     delta = y - before  # the change actually made
             else:
                 y += delta
-            norm = float((np.abs(delta) / self._scale).max())
+            size = np.abs(delta)
+            norm = float((size / self._scale).max())
             rate_poor = norm > REFACTOR_CONTRACTION * prev_norm
             prev_before, prev_norm = prev_norm, norm
             if p.exact_jacobian:
@@ -524,7 +526,7 @@ class TimeStepper:
             if weight is not None and it >= 1 and not settled:
                 contraction = norm / prev_before
                 settled = (contraction < 0.5 and
-                           float((np.abs(delta) * weight).max()) * contraction / (1.0 - contraction) <= 1.0)
+                           float((size * weight).max()) * contraction / (1.0 - contraction) <= 1.0)
             if not np.isfinite(y).all():
                 return None
             if weight is not None and not settled and (it == 0 or contraction < 0.5):
@@ -532,8 +534,7 @@ class TimeStepper:
                 # fraction of the update just made: contraction < 0.5, or after the first update,
                 # whose contraction is not known yet, twice as far) is rejected without converging
                 # it first; the retake's step follows from this estimate
-                err = float((est_factor * np.abs(y - y_pred)
-                             / (opt.tolerance * self._scale + opt.relative_tolerance * np.abs(y))).max())
+                err = float((est_factor * np.abs(y - y_pred) / self._tolerance(y)).max())
                 if err > (2.0 * EARLY_REJECTION if it == 0 else EARLY_REJECTION):
                     return y, None, err, None, order, None, a0
             ev = p.evaluate(y, t_new)
@@ -549,7 +550,7 @@ class TimeStepper:
         err = 0.0
         if opt.adaptive:
             est = est_factor * np.abs(y - y_pred)
-            err = float((est / (opt.tolerance * self._scale + opt.relative_tolerance * np.abs(y))).max())
+            err = float((est / self._tolerance(y)).max())
         return y, m_new, err, ev, order, w_new, a0
 
     def _balance(self, m_new, ev, dt, a0, a2, inflow=None):
@@ -579,6 +580,17 @@ class TimeStepper:
             at_round_off = at_round_off and missing <= ROUND_OFF_ULPS * _EPS * (content + kept[1][g])
         self._at_round_off = at_round_off
         return w_new, errors
+
+    def _tolerance(self, y: np.ndarray) -> np.ndarray:
+        """The error allowed on each unknown at the (finite) state y: tolerance * scale + relative
+        tolerance * |y|; without a relative tolerance the first term, kept (adding 0 |y| = 0 to
+        it changes nothing)."""
+        opt = self.options
+        if opt.relative_tolerance == 0.0:
+            if self._absolute_tolerance is None:
+                self._absolute_tolerance = opt.tolerance * self._scale
+            return self._absolute_tolerance
+        return opt.tolerance * self._scale + opt.relative_tolerance * np.abs(y)
 
     def _newton_from_predictor(self, order: int) -> bool:
         return getattr(self.problem, "newton_from_predictor", False)
