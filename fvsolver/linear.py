@@ -318,11 +318,18 @@ class KeptTriplets:
 
     def add(self, rows, cols, values) -> None:
         if self.assembly is None:
-            r, c, v = np.broadcast_arrays(np.atleast_1d(rows), np.atleast_1d(cols), np.atleast_1d(values))
-            self._rows.append(r.ravel())
-            self._cols.append(c.ravel())
-            self._values.append(v.ravel())
-            self._lengths.append(r.size)
+            r, c, v = (np.asarray(a).ravel() for a in (rows, cols, values))
+            sizes = {r.size, c.size, v.size} - {1}
+            if len(sizes) > 1:
+                raise ValueError(f"KeptTriplets: a block's rows, columns and values have sizes {r.size}, {c.size} "
+                                 f"and {v.size}; each must be one or the block's size")
+            size = sizes.pop() if sizes else 1
+            if not r.size == c.size == v.size:  # the single entries spread over the block, as NumPy broadcasts
+                r, c, v = (a if a.size == size else np.repeat(a, size) for a in (r, c, v))
+            self._rows.append(r)
+            self._cols.append(c)
+            self._values.append(v)
+            self._lengths.append(size)
             return
         if self._block >= len(self._lengths):
             raise ValueError(f"KeptTriplets: more blocks than the {len(self._lengths)} recorded; call forget() "
