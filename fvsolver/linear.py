@@ -102,23 +102,13 @@ class Factor:
         if self._m == n and order is None and row_scale is None:
             self.solve = lu.solve
         if order is not None:
-            # the pre-ordered solve as two gathers: the right-hand side (scaled) in the order, and
-            # the first n unknowns back from it (inverse: argsort(order)[:n], kept by a Factoriser)
+            # for the pre-ordered solve (inverse: argsort(order)[:n], kept by a Factoriser)
             self._inverse = np.argsort(order)[:n] if inverse is None else inverse
             self._scale_ordered = None if row_scale is None else row_scale[order]
-            self.solve = self._solve_ordered
 
     @property
     def shape(self) -> tuple[int, int]:
         return (self.n, self.n)
-
-    def _solve_ordered(self, rhs: np.ndarray) -> np.ndarray:
-        b = np.zeros(self._m)
-        b[: self.n] = rhs
-        b = b[self.order]
-        if self._scale_ordered is not None:
-            b *= self._scale_ordered
-        return self.lu.solve(b)[self._inverse]
 
     @property
     def fill(self) -> int:
@@ -126,15 +116,22 @@ class Factor:
         return int(self.lu.L.nnz + self.lu.U.nnz)
 
     def solve(self, rhs: np.ndarray) -> np.ndarray:
+        # (the plain case's solve is SuperLU's own, set in __init__: the instance does not hold a
+        # bound method of itself, a reference cycle that would keep each factor until a collection)
+        if self.order is not None:
+            # pre-ordered: two gathers, the right-hand side (scaled) in the order and the first n
+            # unknowns back from it
+            b = np.zeros(self._m)
+            b[: self.n] = rhs
+            b = b[self.order]
+            if self._scale_ordered is not None:
+                b *= self._scale_ordered
+            return self.lu.solve(b)[self._inverse]
         m = self._m
         b = rhs if m == self.n else np.concatenate([rhs, np.zeros(m - self.n)])
         if self.row_scale is not None:
             b = b * self.row_scale
-        if self.order is None:
-            return self.lu.solve(b)[: self.n]
-        x = np.empty(m)
-        x[self.order] = self.lu.solve(b[self.order])
-        return x[: self.n]
+        return self.lu.solve(b)[: self.n]
 
 
 def with_data(template: sp.spmatrix, data: np.ndarray) -> sp.spmatrix:
