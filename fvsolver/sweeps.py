@@ -19,6 +19,7 @@ import math
 import os
 import re
 import sys
+import threading
 import time as wall
 import warnings
 import tomllib
@@ -270,6 +271,14 @@ def _one_blas_thread_per_worker():
                 os.environ[k] = v
 
 
+def _import_quietly(name: str) -> None:
+    """Import ``name`` ahead of its use; a failure is left for the use itself to report."""
+    try:
+        importlib.import_module(name)
+    except Exception:  # noqa: BLE001 - the import is tried again where the module is used
+        pass
+
+
 def sweep(case: Case, varies: list[Vary], out: str | Path | None = None, overwrite: bool = False,
           plots: bool = False, progress=None, jobs: int = 1, engine=None) -> list[dict]:
     """Run ``case`` over the grid of ``varies``; return one row per run, in grid order.
@@ -308,6 +317,12 @@ def sweep(case: Case, varies: list[Vary], out: str | Path | None = None, overwri
         if pool is not None:
             workers.stop(pool)
         raise
+    if pool is not None and folder is not None:
+        # this process only waits while the workers run: it imports the plotting for the sweep's
+        # plot now, on the core the fork server leaves free while it imports the solver (after the
+        # last run it cost the sweep's tail 0.55 s of 1.1 s)
+        threading.Thread(target=_import_quietly, args=("fvsolver.plotting",), name="plotting-import",
+                         daemon=True).start()
     done: dict[int, dict] = {}
     cycle_columns = case["geometry"]["shape"] == "whole_device"
 
