@@ -380,7 +380,6 @@ def _chosen_fields(fields, summary, most: int = 8) -> list:
         chosen = chosen[:-1]
     if len(chosen) > most:
         keep = set(np.linspace(0, len(chosen) - 1, most).astype(int))
-        crossing = summary.get("time_to_target_s")
         keep |= {i for i, (t, _) in enumerate(chosen) if t == crossing}
         chosen = [f for i, f in enumerate(chosen) if i in keep]
     return chosen

@@ -18,7 +18,6 @@ import json
 import math
 import os
 import re
-import sys
 import threading
 import time as wall
 import warnings
@@ -340,10 +339,6 @@ def sweep(case: Case, varies: list[Vary], out: str | Path | None = None, overwri
         done[index] = row
         if folder is not None:
             atomic_write_text(folder / "sweep.csv", _table([done[i] for i in sorted(done)]))
-            if pool is not None and len(grid) - len(done) < jobs and "fvsolver.plotting" not in sys.modules:
-                # a worker has no run left to take: its core imports the plotting (matplotlib)
-                # for the sweep's plot now instead of after the last run
-                importlib.import_module("fvsolver.plotting")
         if progress is not None:
             progress(index, len(grid), changes, row)
         if row["status"] == "interrupted":
