@@ -205,13 +205,23 @@ class ConductionProblem:
                                   self.stencil.dist_neighbour, self.stencil.geometry, g)
         self._g_constant = g if self._constant_k else None
 
-    def compile_surfaces(self, on: bool) -> None:
+    def compile_surfaces(self, on: bool, fused: bool = True) -> None:
         """Solve the coupled patches' surface balances in the compiled kernel (on, where numba's JIT
-        is on) or with their terms' NumPy ``heat_flux`` (off: the twin the tests compare with)."""
+        is on) or with their terms' NumPy ``heat_flux`` (off: the twin the tests compare with);
+        ``fused``: where it can, the whole evaluation in one compiled call (off: the separate
+        kernels and NumPy sums it replaces, its twin)."""
         self._compiled = _compiled_surfaces(self._every_flux_group, self.mesh.n_boundary) if on else None
         self._flux_groups = self._every_flux_group
         if self._compiled is not None:
             self._flux_groups = [(c, f) for c, f in self._every_flux_group if not _compilable(c)]
+        # the whole heat rate in one compiled call, where nothing but the coupled faces needs a
+        # boundary solve (no fixed temperatures, every other flux face insulated)
+        self._fused = fused and self._compiled is not None and not self._dirichlet_groups and not any(
+            c.terms for c, _ in self._flux_groups)
+        if self._fused:
+            n, nb = self.n, self.mesh.n_boundary
+            # work arrays of the fused call (no evaluation hands them out)
+            self._work = (np.empty(n), np.empty(nb), np.empty((n, 2)))
 
     # -- properties -------------------------------------------------------------------------
     def _per_cell(self, T: np.ndarray, attribute: str, context) -> np.ndarray:
@@ -324,14 +334,9 @@ class ConductionProblem:
         """Surface temperatures, heat fluxes and their T_P derivatives on every boundary face, at
         the cells' own temperatures (the fixed-temperature faces' offset correction, which needs
         the gradients, is ``_offset_correction``)."""
-        mesh, st = self.mesh, self.stencil
+        mesh = self.mesh
         bc = mesh.boundary_cell
-        kept = self._kappa_kept
-        if kept is not None and kept[0] is k:  # the same kept conductivities (never written to)
-            kappa = kept[1]
-        else:
-            kappa = k[bc] / st.boundary_distance
-            self._kappa_kept = (k, kappa)
+        kappa = self._surface_conductance(k)
         # the tangential offset (non-orthogonal boundary cells) is corrected on fixed-temperature
         # faces; on flux faces the surface balance is taken at the cell's own temperature, so the
         # surface solve never waits on the gradients (first order in the offset there)
@@ -370,6 +375,15 @@ class ConductionProblem:
         self._last_surface = (kappa, g1_all, surface_terms)
         return t_s, q, dq_dtp
 
+    def _surface_conductance(self, k: np.ndarray) -> np.ndarray:
+        """k_P / delta of every boundary face, W/(m2 K); kept with the conductivities it came from."""
+        kept = self._kappa_kept
+        if kept is not None and kept[0] is k:  # the same kept conductivities (never written to)
+            return kept[1]
+        kappa = k[self.mesh.boundary_cell] / self.stencil.boundary_distance
+        self._kappa_kept = (k, kappa)
+        return kappa
+
     def _offset_correction(self, T, grad, t_s, q) -> None:
         """The fixed-temperature faces' heat flux from the foot of the face normal through the cell
         centre (T_P + grad T . offset), in place on q."""
@@ -386,6 +400,8 @@ class ConductionProblem:
         ``context`` carries the coupled lumped state (cap water, vapour space) to the
         materials and boundary terms that depend on it.
         """
+        if self._fused:
+            return self._evaluate_fused(T, time, context)
         mesh, st = self.mesh, self.stencil
         k = self.conductivity(T, context)
         g = self._face_conductance(k)
@@ -408,6 +424,40 @@ class ConductionProblem:
         boundary_heat = area * q
         rate += np.bincount(mesh.boundary_cell, boundary_heat, self.n)
         bjac = np.bincount(mesh.boundary_cell, area * dq, self.n)
+        source_heat = self._add_sources(rate, time)
+        kappa, g1, surface_terms = self._last_surface
+        return Evaluation(rate, bjac, g, t_s, boundary_heat, source_heat, kappa, g1, surface_terms)
+
+    def _evaluate_fused(self, T: np.ndarray, time: float, context) -> Evaluation:
+        """``evaluate`` in one compiled call (``kernels.surfaces.evaluate_heat_rate``: the same
+        operations in the same order as the separate kernels and bincounts, so the same values)."""
+        mesh, st, compiled = self.mesh, self.stencil, self._compiled
+        k = self.conductivity(T, context)
+        g = self._face_conductance(k)
+        kappa = self._surface_conductance(k)
+        params = compiled.parameters(mesh.boundary_centres, context)
+        n, nb = self.n, mesh.n_boundary
+        rate, bjac = np.empty(n), np.empty(n)
+        t_s, q, g1, boundary_heat = np.empty(nb), np.empty(nb), np.empty(nb), np.empty(nb)
+        terms = np.empty((nb, _ks.OUTPUTS))
+        guess = self._surface_guess
+        face_k = self._face_k(g) if self.correct else g
+        work, dq_dtp, grad = self._work
+        _ks.evaluate_heat_rate(T, g, mesh.owner, mesh.neighbour, mesh.boundary_cell, mesh.boundary_areas,
+                               self.correct, st.lsq_owner, st.lsq_neighbour, st.lsq_boundary, face_k,
+                               st.weight_owner, st.tangent, compiled.kinds, params, compiled.faces, kappa,
+                               _NO_GUESS if guess is None else guess, compiled.fluid, compiled.water,
+                               compiled.water_latent, work, dq_dtp, grad, rate, bjac, t_s, q, g1, boundary_heat,
+                               terms)
+        if self.correct or not self.boundary.linear:
+            self._surface_guess = t_s
+        source_heat = self._add_sources(rate, time) if self.sources else 0.0
+        self._last_surface = (kappa, g1, terms)
+        return Evaluation(rate, bjac, g, t_s, boundary_heat, source_heat, kappa, g1, terms)
+
+    def _add_sources(self, rate: np.ndarray, time: float) -> float:
+        """The volumetric sources' heat added to ``rate`` in place; their total, W."""
+        mesh = self.mesh
         source_heat = 0.0
         for s in self.sources:
             sel = slice(None) if s.material is None else mesh.cell_material == mesh.material_names.index(s.material)
@@ -415,8 +465,7 @@ class ConductionProblem:
             power = _evaluate(s.power_density, centres, time) * mesh.cell_volumes[sel]
             rate[sel] += power
             source_heat += float(power.sum())
-        kappa, g1, surface_terms = self._last_surface
-        return Evaluation(rate, bjac, g, t_s, boundary_heat, source_heat, kappa, g1, surface_terms)
+        return source_heat
 
     def _face_conductance(self, k: np.ndarray) -> np.ndarray:
         """Two-point face conductances (W/K) of the conductivities k; the last pair is kept (the

@@ -215,3 +215,78 @@ def solve_boundary_faces(kinds, params, faces, kappa, t_foot, guess, fluid, wate
         g1[b] = d
         q[b] = kp * (x - tf)
         dq_dtp[b] = kp * d / (kp - d)
+
+
+@jit
+def evaluate_heat_rate(T, g, owner, neighbour, boundary_cell, boundary_areas, correct, lsq_owner, lsq_neighbour,
+                       lsq_boundary, face_k, weight_owner, tangent, kinds, params, faces, kappa, guess, fluid, water,
+                       water_latent, work, dq_dtp, grad, rate, bjac, t_s, q, g1, boundary_heat, terms):
+    """A conduction problem's whole heat rate in one call, where its only boundary work is the
+    coupled faces (``faces``) and term-less (insulated) faces: the two-point face fluxes
+    (``kernels.conduction.face_flux_sum``), the coupled faces' surface solve
+    (``solve_boundary_faces`` at the cells' own temperatures), with ``correct`` the least-squares
+    gradients and the non-orthogonal correction (``cell_gradients``, ``correction_flux_sum``), and
+    the boundary faces' heat and dq/dT_P summed into their cells (the NumPy bincounts), each in the
+    order of the calls it replaces, so the values are theirs bit for bit.
+
+    T (n,); g, owner, neighbour, face_k, weight_owner (n_faces,), tangent, lsq_owner, lsq_neighbour
+    (n_faces, 2); boundary_cell, boundary_areas, kappa, guess (n_boundary,) (guess empty: start at
+    T_P), lsq_boundary (n_boundary, 2); kinds, params, faces as ``solve_boundary_faces``. Work arrays:
+    work (n,), dq_dtp (n_boundary,), grad (n, 2). Writes rate, bjac (n,), t_s, q, g1, boundary_heat
+    (n_boundary,) and terms (n_boundary, OUTPUTS) (NaN off the coupled faces).
+    """
+    n = rate.shape[0]
+    nb = boundary_cell.shape[0]
+    for i in range(n):
+        rate[i] = 0.0
+        bjac[i] = 0.0
+        work[i] = 0.0
+    for f in range(owner.shape[0]):
+        p = owner[f]
+        nn = neighbour[f]
+        flux = g[f] * (T[nn] - T[p])
+        rate[p] += flux
+        rate[nn] -= flux
+    for b in range(nb):
+        t_s[b] = T[boundary_cell[b]]
+        q[b] = 0.0
+        dq_dtp[b] = 0.0
+        g1[b] = 0.0
+        for c in range(terms.shape[1]):
+            terms[b, c] = np.nan
+    solve_boundary_faces(kinds, params, faces, kappa, t_s, guess, fluid, water, water_latent, t_s, q, dq_dtp, g1,
+                         terms)
+    if correct:
+        for i in range(n):
+            grad[i, 0] = 0.0
+            grad[i, 1] = 0.0
+        for f in range(owner.shape[0]):
+            p = owner[f]
+            nn = neighbour[f]
+            dt = T[nn] - T[p]
+            grad[p, 0] += lsq_owner[f, 0] * dt
+            grad[p, 1] += lsq_owner[f, 1] * dt
+            grad[nn, 0] += lsq_neighbour[f, 0] * dt
+            grad[nn, 1] += lsq_neighbour[f, 1] * dt
+        for b in range(nb):
+            p = boundary_cell[b]
+            dt = t_s[b] - T[p]
+            grad[p, 0] += lsq_boundary[b, 0] * dt
+            grad[p, 1] += lsq_boundary[b, 1] * dt
+        for f in range(owner.shape[0]):
+            p = owner[f]
+            nn = neighbour[f]
+            w = weight_owner[f]
+            gx = w * grad[p, 0] + (1.0 - w) * grad[nn, 0]
+            gy = w * grad[p, 1] + (1.0 - w) * grad[nn, 1]
+            flux = face_k[f] * (gx * tangent[f, 0] + gy * tangent[f, 1])
+            rate[p] += flux
+            rate[nn] -= flux
+    # the boundary's sums per cell first, then added (as rate += np.bincount(...))
+    for b in range(nb):
+        heat = boundary_areas[b] * q[b]
+        boundary_heat[b] = heat
+        work[boundary_cell[b]] += heat
+        bjac[boundary_cell[b]] += boundary_areas[b] * dq_dtp[b]
+    for i in range(n):
+        rate[i] += work[i]
