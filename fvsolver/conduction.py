@@ -325,10 +325,31 @@ class ConductionProblem:
         rho_c = self._per_cell(T, "volumetric_heat_capacity", context)
         kept = self._capacity_kept
         if kept is None or kept[0] is not rho_c:  # rho c kept by _per_cell: so is V rho c (never written to)
-            kept = (rho_c, v * rho_c)
+            kept = (rho_c, v * rho_c, self._energy_factors(context))
             if self._fixed_per_cell["volumetric_heat_capacity"][3]:
                 self._capacity_kept = kept
+        factors = kept[2]
+        if factors is not None:  # every cell's energy rho (c (T - T_ref)) from two kept factors: one call
+            m = np.empty(self.n)
+            kern.stored_energy(T, v, factors[0], factors[1], REFERENCE_TEMPERATURE, m)
+            return m, kept[1]
         return v * self._per_cell(T, "volumetric_energy", context), kept[1]
+
+    def _energy_factors(self, context):
+        """(rho, c) per cell such that the stored energy per volume is rho (c (T - T_ref)), the
+        products ``_per_cell(T, "volumetric_energy")`` forms (a material whose rho c is one number at
+        the context: rho c and 1), or None where a material's c follows T."""
+        if "volumetric_energy" not in self._fixed_per_cell:
+            self._per_cell(np.full(self.n, REFERENCE_TEMPERATURE), "volumetric_energy", context)
+        base, varying, energy, uniform = self._fixed_per_cell["volumetric_energy"]
+        if base is not None or not uniform:
+            return None
+        rho, c = np.full(self.n, np.nan), np.ones(self.n)
+        if energy is not None:
+            rho[energy[0]], c[energy[0]] = energy[1], energy[2]
+        for m, cells in varying:
+            rho[cells] = m.uniform_properties(context)[1]
+        return (rho, c) if not np.isnan(rho).any() else None
 
     def _surface(self, T, time, k, context=None):
         """Surface temperatures, heat fluxes and their T_P derivatives on every boundary face, at

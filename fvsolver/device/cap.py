@@ -91,6 +91,11 @@ class PorousCap:
     def volumetric_heat_capacity(self, T: np.ndarray, context=None) -> np.ndarray:
         return np.full(np.shape(T), self._properties(context)[1])
 
+    @property
+    def energy_slope(self) -> float:
+        """d(volumetric energy)/ds per kelvin above the reference, J/(m3 K)."""
+        return self.porosity * (self.water_volumetric_heat - AIR_VOLUMETRIC_HEAT)
+
     def denergy_dsaturation(self, T: np.ndarray) -> np.ndarray:
         """d(volumetric energy)/ds, J/m3."""
-        return self.porosity * (self.water_volumetric_heat - AIR_VOLUMETRIC_HEAT) * (T - REFERENCE_TEMPERATURE)
+        return self.energy_slope * (T - REFERENCE_TEMPERATURE)

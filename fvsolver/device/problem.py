@@ -37,6 +37,7 @@ from fvsolver.device.spec import GRAVITY, DeviceSpec
 from fvsolver.materials import REFERENCE_TEMPERATURE
 from fvsolver.device.surfaces import CondensingWall, EvaporativeCap, RoomSurface, water_latent_heat
 from fvsolver.device.transfer import SphereTransfer
+from fvsolver.kernels import device as _kd
 from fvsolver.kernels import surfaces as ks
 from fvsolver.linear import KeptTriplets, LowRankUpdate
 from fvsolver.properties import moist_air, porous
@@ -166,6 +167,7 @@ class DeviceProblem:
         n_in = len(self.inner)
         self.i_mv, self.i_c = n, np.arange(n + 1, n + 1 + n_in)
         self.i_w, self.i_tb = n + 1 + n_in, n + 2 + n_in
+        self._inventories = slice(n + 1, n + 1 + n_in)
         self.n = n + n_in + 3
         self.body = body
         self.i_mp = None
@@ -193,6 +195,12 @@ class DeviceProblem:
         self._reservoir_share = self._cap_cell_volumes / self.cap_volume * spec.cap_water.water_heat_capacity
         self._sensible_slope = self._cap_cell_volumes * self.cap_material.porosity * (
             self.cap_material.water_volumetric_heat - 1.2 * 1006.0)
+        from fvsolver.kernels import COMPILED
+
+        # the cells' and inventories' rates in one compiled call (kernels.device), its twin the NumPy
+        # of _water_sensible and _rates
+        self._compiled_rates = COMPILED
+        self._energy_slope = getattr(self.cap_material, "energy_slope", 0.0)
         self.inner_area = mesh.boundary_areas[self.inner]
         self.outer_diameter = spec.room.diameter
         self._keep_means(mesh)
@@ -427,7 +435,8 @@ class DeviceProblem:
         dm = np.empty(self.n)
         m[:n], dm[:n] = self.conduction.capacity(y[:n], ctx)
         m[self.i_mv], dm[self.i_mv] = y[self.i_mv], 1.0
-        m[self.i_c], dm[self.i_c] = self.inner_area * y[self.i_c], self.inner_area
+        c = self._inventories  # (a slice: i_c are consecutive)
+        m[c], dm[c] = self.inner_area * y[c], self.inner_area
         m[self.i_w], dm[self.i_w] = y[self.i_w], 1.0
         if self.body is not None:  # the pool's energy, m_p c_l (T_p - T_ref)
             cl = self.body.liquid_heat_capacity
@@ -438,7 +447,27 @@ class DeviceProblem:
         m[self.i_tb], dm[self.i_tb] = cb * y[self.i_tb], cb
         return m, dm
 
-    def _water_sensible(self, T, evaporation_total, ctx):
+    def _rates(self, T, conduction_rate, evaporation_total, j, rate):
+        """The water's sensible enthalpy (``_water_sensible``), the cells' rates into ``rate`` and the
+        inner faces' mass flows A j, written into ``rate``'s inventory rows: (sensible, its T_P
+        derivative, A j); one compiled call (``kernels.device.device_rates``) where numba is on."""
+        n = self.n_cells
+        if not self._compiled_rates:
+            sensible, dsensible = self._water_sensible(T, evaporation_total)
+            rate[:n] = conduction_rate + sensible
+            aj = self.inner_area * j
+            rate[self.i_c] = aj
+            return sensible, dsensible, aj
+        sensible, dsensible, per_evaporation = np.empty(n), np.empty(n), np.empty(n)
+        aj = np.empty(self.inner_area.size)
+        _kd.device_rates(T, conduction_rate, self.cap_cells, self._cap_cell_volumes, self._charge, evaporation_total,
+                         self.pore_water_capacity, self._energy_slope, self._sensible_slope, self._reservoir_share,
+                         self.spec.cap_water.reservoir_temperature, REFERENCE_TEMPERATURE, self.inner_area, j,
+                         self.i_mv + 1, rate, sensible, dsensible, per_evaporation, aj)
+        self._per_evaporation = per_evaporation
+        return sensible, dsensible, aj
+
+    def _water_sensible(self, T, evaporation_total):
         """W into each cap cell from the sensible enthalpy of the water leaving or arriving."""
         out = np.zeros(self.n_cells)
         dout = np.zeros(self.n_cells)
@@ -476,12 +505,9 @@ class DeviceProblem:
             j, dj_dt, dj_dp, dj_dc = self.wall_term.mass_flux(t_s[self.inner], self.inner, ctx)
             m_e, dme_dt = self.cap_term.mass_flux(t_s[self.cap_faces], ctx)
         evap_total = float(np.dot(self._cap_area, m_e))
-        sensible, dsensible = self._water_sensible(T, evap_total, ctx)
         rate = np.zeros(self.n)
-        rate[:n] = ev.rate + sensible
-        aj = self.inner_area * j
+        sensible, dsensible, aj = self._rates(T, ev.rate, evap_total, j, rate)
         rate[self.i_mv] = -aj.sum()
-        rate[self.i_c] = aj
         if self._charge:
             rate[self.i_w] = -evap_total
         bulb = self.spec.second_bulb

@@ -113,3 +113,11 @@ def gross_exchange(T, cells, slope, reference):
         c = cells[j]
         total += abs(slope[j] * (T[c] - reference[c]))
     return total
+
+
+@jit
+def stored_energy(T, volumes, density, heat_capacity, reference, out):
+    """out = V (rho (c (T - T_ref))), J, per cell (a material whose rho c is one number has
+    rho = rho c and c = 1, exactly the same product)."""
+    for i in range(T.shape[0]):
+        out[i] = volumes[i] * (density[i] * (heat_capacity[i] * (T[i] - reference)))

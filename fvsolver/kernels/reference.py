@@ -59,3 +59,7 @@ def affine_update(y0, delta, capacity, m0, m1, inflow, a0, a1, a2, dt):
 
 def gross_exchange(T, cells, slope, reference):
     return float(np.abs(slope * (T[cells] - reference[cells])).sum())
+
+
+def stored_energy(T, volumes, density, heat_capacity, reference):
+    return volumes * (density * (heat_capacity * (T - reference)))
