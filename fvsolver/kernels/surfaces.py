@@ -124,7 +124,8 @@ def _face_flux(kind, ts, p, fl, water, wl):
 
 @jit
 def _solve_face(kind, p, kp, tf, x, fluid, water, water_latent):
-    """T_s of one face: kappa (T_s - T_foot) = q(T_s) from the start x (K)."""
+    """T_s of one face: kappa (T_s - T_foot) = q(T_s) from the start x (K), and ``_face_flux``'s
+    values there."""
     # Newton's method on F = kappa (T_s - T_foot) - q(T_s), increasing in T_s: every iterate
     # sets one side of the bracket [lo, hi] by the sign of F there. A side not yet known is
     # approached by Newton steps no longer than `reach` (doubled at every such step, as a
@@ -136,7 +137,7 @@ def _solve_face(kind, p, kp, tf, x, fluid, water, water_latent):
     fhi = 1.0
     reach = 0.5
     for _ in range(400):
-        q, dq, _, _, _, _, _ = _face_flux(kind, x, p, fluid, water, water_latent)
+        q, dq, m, dm, dm_dp, dm_dc, lat = _face_flux(kind, x, p, fluid, water, water_latent)
         f = kp * (x - tf) - q
         df = kp - dq
         if f <= 0.0:
@@ -160,15 +161,19 @@ def _solve_face(kind, p, kp, tf, x, fluid, water, water_latent):
             if not (new > lo and new < hi):
                 new = 0.5 * (lo + hi)
         done = abs(new - x) <= 2e-15 * abs(x) or hi - lo <= 4e-15 * abs(x)
+        if done and new == x:
+            # the last step rounded away (the usual end of Newton's quadratic run): the flux just
+            # computed is the answer's, no evaluation at the same point again
+            return x, q, dq, m, dm, dm_dp, dm_dc, lat
         x = new
         if done:
             break
-    return x
+    q, dq, m, dm, dm_dp, dm_dc, lat = _face_flux(kind, x, p, fluid, water, water_latent)
+    return x, q, dq, m, dm, dm_dp, dm_dc, lat
 
 
 @jit
-def _store(i, kind, x, p, fluid, water, water_latent, out):
-    q, dq, m, dm, dm_dp, dm_dc, lat = _face_flux(kind, x, p, fluid, water, water_latent)
+def _store(i, x, q, dq, m, dm, dm_dp, dm_dc, lat, out):
     out[i, TS] = x
     out[i, Q] = q
     out[i, DQ] = dq
@@ -189,9 +194,10 @@ def solve_surfaces(kinds, params, kappa, t_foot, guess, fluid, water, water_late
     """
     for i in range(kinds.shape[0]):
         tf = t_foot[i]
-        x = _solve_face(kinds[i], params[i], kappa[i], tf, guess[i] if guess[i] > 0.0 else tf, fluid, water,
-                        water_latent)
-        _store(i, kinds[i], x, params[i], fluid, water, water_latent, out)
+        x, q, dq, m, dm, dm_dp, dm_dc, lat = _solve_face(kinds[i], params[i], kappa[i], tf,
+                                                         guess[i] if guess[i] > 0.0 else tf, fluid, water,
+                                                         water_latent)
+        _store(i, x, q, dq, m, dm, dm_dp, dm_dc, lat, out)
 
 
 @jit
@@ -208,9 +214,8 @@ def solve_boundary_faces(kinds, params, faces, kappa, t_foot, guess, fluid, wate
         x0 = tf
         if guess.shape[0] > 0 and guess[b] > 0.0:
             x0 = guess[b]
-        x = _solve_face(kinds[i], params[i], kp, tf, x0, fluid, water, water_latent)
-        _store(b, kinds[i], x, params[i], fluid, water, water_latent, terms)
-        d = terms[b, DQ]
+        x, qs, d, m, dm, dm_dp, dm_dc, lat = _solve_face(kinds[i], params[i], kp, tf, x0, fluid, water, water_latent)
+        _store(b, x, qs, d, m, dm, dm_dp, dm_dc, lat, terms)
         t_s[b] = x
         g1[b] = d
         q[b] = kp * (x - tf)
