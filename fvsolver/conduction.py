@@ -514,14 +514,20 @@ class ConductionProblem:
         """J = alpha0 dm/dT - dt dF/dT (two-point part; the deferred correction is left out)."""
         st = self.stencil
         data = np.empty_like(st.pattern.data)
-        diag = alpha0 * dm - dt * ev.boundary_jacobian
-        kern.fill_jacobian(data, st.diag_pos, st.owner_pos, st.neighbour_pos, self.mesh.owner,
-                           self.mesh.neighbour, diag, ev.conductance, dt)
+        self.jacobian_values(alpha0, dt, dm, ev, data)
         J = with_data(st.pattern, data)  # the stencil's structure, checked when it was built
         implicit = self._implicit_correction
         if implicit is not None:
             J = (J - dt * implicit[0]).tocsr()
         return J
+
+    def jacobian_values(self, alpha0: float, dt: float, dm: np.ndarray, ev: Evaluation, out: np.ndarray) -> None:
+        """The two-point Jacobian's CSR values (the stencil's pattern, ``jacobian``'s without the
+        implicit correction) written into ``out`` (nnz,)."""
+        st = self.stencil
+        diag = alpha0 * dm - dt * ev.boundary_jacobian
+        kern.fill_jacobian(out, st.diag_pos, st.owner_pos, st.neighbour_pos, self.mesh.owner,
+                           self.mesh.neighbour, diag, ev.conductance, dt)
 
     def affine_operator(self):
         """F(T) = A T + f0 with everything fixed in time, or None when the problem is not so.

@@ -224,6 +224,8 @@ class DeviceProblem:
         self.tolerance_scale = self._tolerance_scale()
         # the Jacobian's kept assembly (three low-rank columns) and its constant pieces
         self._triplets = KeptTriplets(self.n, 3)
+        self._block_ends = None  # where each block of the recorded pattern ends in its values
+        self._wall_work = np.empty((2, len(self.inner)))
         self._conduction_pattern = (None, None)
         self._cells = np.arange(n)
         self._wall_weight = self.inner_area / max(float(self.inner_area.sum()), 1e-300)
@@ -231,6 +233,7 @@ class DeviceProblem:
         self._outer_weight = area_o / area_o.sum() if area_o.size else area_o
         # the outside faces' groups of the transfer coupling: (faces, their cells, their areas, cap or not)
         self._cap_face_cells = mesh.boundary_cell[self.cap_faces]
+        self._cap_work = np.empty(len(self.cap_faces))
         self._transfer_groups = tuple((faces, mesh.boundary_cell[faces], mesh.boundary_areas[faces], cap)
                                       for faces, cap in ((self.cap_faces, True), (self.head_room_faces, False))
                                       if faces.size)
@@ -561,57 +564,39 @@ class DeviceProblem:
         outside coefficients), so the pattern is the run's and is assembled once."""
         n, mesh, x = self.n_cells, self.mesh, ev.extras
         c = ev.conduction
-        jtt = self.conduction.jacobian(alpha0, dt, dm[:n], c)
         kept = self._triplets
-        block = self._conduction_pattern
-        if kept.assembly is not None and not (jtt.indices is block[0] or np.array_equal(jtt.indices, block[0])):
-            kept.forget()  # the conduction block's pattern changed (never within a run today)
-        if kept.assembly is None:
-            self._conduction_pattern = (jtt.indices, np.repeat(np.arange(n), np.diff(jtt.indptr)))
-        kept.begin()
-        add = kept.add
-        add(self._conduction_pattern[1], jtt.indices, jtt.data)
+        # the recorded pattern's values written in place, the heavy blocks by kernels.device (its
+        # twin: the blocks given to KeptTriplets below, which a first call records)
+        fast = self._block_ends is not None and kept.assembly is not None and c.surface_terms is not None
+        if fast:
+            add = _BlockWriter(kept.assembly.values, self._block_ends)
+            self.conduction.jacobian_values(alpha0, dt, dm[:n], c, add.values[: self._block_ends[0]])
+            add.skip(1)
+        else:
+            jtt = self.conduction.jacobian(alpha0, dt, dm[:n], c)
+            block = self._conduction_pattern
+            if kept.assembly is not None and not (jtt.indices is block[0] or np.array_equal(jtt.indices, block[0])):
+                kept.forget()  # the conduction block's pattern changed (never within a run today)
+            if kept.assembly is None:
+                self._conduction_pattern = (jtt.indices, np.repeat(np.arange(n), np.diff(jtt.indptr)))
+            kept.begin()
+            add = _Recorder(kept.add) if kept.assembly is None else kept.add
+            add(self._conduction_pattern[1], jtt.indices, jtt.data)
         add(self._cells, self._cells, -dt * x["dsensible"])
         # condensing inner faces (the common factors formed once, in the order the products take them)
-        b = self.inner
-        P = self._inner_cells
-        kap, g1 = c.surface_conductance[b], c.surface_derivative[b]
-        area = self.inner_area
-        den = kap - g1
-        tau = kap / den
-        terms = c.surface_terms
-        lat = terms[b, ks.LATENT] if terms is not None else self.wall_term.latent_heat(c.surface_temperature[b])
         vap = self.spec.vapour
         dp_dm = UNIVERSAL_GAS_CONSTANT * ev.context["vapour"]["temperature"] / (vap.fluid.molar_mass * vap.volume)
-        dj_dt, dj_dp, dj_dc = x["dj_dt"], x["dj_dp"], x["dj_dc"]
-        lat_dp = lat * dj_dp
-        dts_dp = lat_dp / den
-        dts_dc = lat * dj_dc / den
-        dJ_dT = dj_dt * tau
-        dJ_dm = (dj_dp + dj_dt * dts_dp) * dp_dm
-        dJ_dc = dj_dc + dj_dt * dts_dc
-        dt_area = dt * area
-        out_area = -dt_area  # -dt * area, exactly
-        out_kap = out_area * kap
-        flow_dc = dt_area * dJ_dc
-        add(P, self.i_mv, out_kap * dts_dp * dp_dm)
-        add(P, self.i_c, out_kap * dts_dc)
-        add(self.i_mv, P, dt_area * dJ_dT)
-        add(self.i_mv, self.i_c, flow_dc)
-        add(self.i_c, P, out_area * dJ_dT)
-        add(self.i_c, self.i_mv, out_area * dJ_dm)
-        add(self.i_c, self.i_c, alpha0 * area - flow_dc)
-        # the vapour temperature (the wall cells' mean) sets p_v = m_v R T_v / V: a rank-one coupling
-        # of every wall face to every wall cell, u w^T with w the wall cells' area weights, which
-        # fvsolver.linear factorises through the bordered system instead of forming the dense block
         p_v, t_v = ev.context["vapour"]["pressure"], ev.context["vapour"]["temperature"]
         per_tv = p_v / t_v  # dp_v / dT_v at fixed m_v (the flux sees T_v through p_v only)
-        dts_dtv = lat_dp * per_tv / den
-        dJ_dtv = dj_dp * per_tv + dj_dt * dts_dtv
         u = self.n + 0  # the bordered system's column (and row) of the first coupling
-        add(P, u, out_kap * dts_dtv)
-        add(self.i_c, u, out_area * dJ_dtv)
-        add(self.i_mv, u, dt * float((area * dJ_dtv).sum()))
+        P = self._inner_cells
+        if fast:
+            sum_dJ_dm = _kd.wall_jacobian(self.inner, c.surface_conductance, c.surface_derivative, c.surface_terms,
+                                          self.inner_area, dp_dm, per_tv, alpha0, dt, self._wall_work, add.values,
+                                          add.position)
+            add.skip(10)
+        else:
+            sum_dJ_dm = self._wall_jacobian(alpha0, dt, ev, dp_dm, per_tv, add)
         if self.body is not None:
             # the joined vapour spaces' flow G = k (p_sat(T_p) - p_v) sees T_v through p_v too (zero
             # while the device stands)
@@ -619,7 +604,7 @@ class DeviceProblem:
             add(self._pool_rows, u, (-dt * dg_dtv, dt * dg_dtv, dt * dg_dtv * x["leaving_enthalpy"]))
         add(u, P, self._wall_weight)
         lumped = np.zeros(self.n - n)
-        lumped[0] = alpha0 + dt * float((area * dJ_dm).sum())
+        lumped[0] = alpha0 + dt * sum_dJ_dm
         # the water's sensible enthalpy in every cap cell follows the total evaporation, which
         # follows the temperatures of the cells under the cap's faces: a second
         self._evaporation_coupling(dt, ev, add)
@@ -664,7 +649,53 @@ class DeviceProblem:
             self._pool_jacobian(alpha0, dt, dm, ev, lumped, add)
         # the lumped rows' diagonals that add() did not give (m_v, W, T_b, m_p), and the c diagonal above
         add(self._lumped_rows, self._lumped_rows, lumped[self._lumped_rows - n])
+        if fast:
+            add.finish()
+            return kept.assembly()
+        if isinstance(add, _Recorder):
+            self._block_ends = np.cumsum(add.lengths)
         return kept.matrix()
+
+    def _wall_jacobian(self, alpha0, dt, ev, dp_dm, per_tv, add) -> float:
+        """The condensing inner faces' blocks of the Jacobian (``kernels.device.wall_jacobian`` is
+        their compiled twin); returns sum(A dJ/dm_v)."""
+        c, x = ev.conduction, ev.extras
+        b = self.inner
+        P = self._inner_cells
+        kap, g1 = c.surface_conductance[b], c.surface_derivative[b]
+        area = self.inner_area
+        den = kap - g1
+        tau = kap / den
+        terms = c.surface_terms
+        lat = terms[b, ks.LATENT] if terms is not None else self.wall_term.latent_heat(c.surface_temperature[b])
+        dj_dt, dj_dp, dj_dc = x["dj_dt"], x["dj_dp"], x["dj_dc"]
+        lat_dp = lat * dj_dp
+        dts_dp = lat_dp / den
+        dts_dc = lat * dj_dc / den
+        dJ_dT = dj_dt * tau
+        dJ_dm = (dj_dp + dj_dt * dts_dp) * dp_dm
+        dJ_dc = dj_dc + dj_dt * dts_dc
+        dt_area = dt * area
+        out_area = -dt_area  # -dt * area, exactly
+        out_kap = out_area * kap
+        flow_dc = dt_area * dJ_dc
+        add(P, self.i_mv, out_kap * dts_dp * dp_dm)
+        add(P, self.i_c, out_kap * dts_dc)
+        add(self.i_mv, P, dt_area * dJ_dT)
+        add(self.i_mv, self.i_c, flow_dc)
+        add(self.i_c, P, out_area * dJ_dT)
+        add(self.i_c, self.i_mv, out_area * dJ_dm)
+        add(self.i_c, self.i_c, alpha0 * area - flow_dc)
+        # the vapour temperature (the wall cells' mean) sets p_v = m_v R T_v / V: a rank-one coupling
+        # of every wall face to every wall cell, u w^T with w the wall cells' area weights, which
+        # fvsolver.linear factorises through the bordered system instead of forming the dense block
+        dts_dtv = lat_dp * per_tv / den
+        dJ_dtv = dj_dp * per_tv + dj_dt * dts_dtv
+        u = self.n + 0  # the bordered system's column (and row) of the first coupling
+        add(P, u, out_kap * dts_dtv)
+        add(self.i_c, u, out_area * dJ_dtv)
+        add(self.i_mv, u, dt * float((area * dJ_dtv).sum()))
+        return float((area * dJ_dm).sum())
 
     def _evaporation_coupling(self, dt: float, ev: DeviceEvaluation, add) -> None:
         """The Jacobian's update column (n + 1) of the water's sensible enthalpy in the cap cells
@@ -695,6 +726,18 @@ class DeviceProblem:
                     add(self.cap_cells, col, 0.0)
                     if self.spec.cap_water.mode == "charge":
                         add(self.i_w, col, 0.0)
+                continue
+            if isinstance(add, _BlockWriter):  # the same values by kernels.device
+                devap = _kd.transfer_jacobian(faces, area, c.surface_conductance, c.surface_derivative,
+                                              c.surface_temperature, c.surface_terms, room.air_temperature, dh, cap,
+                                              ev.evaporation, dhm, ctx["cap"]["h_m"], dt, self._cap_work,
+                                              add.values, add.position)
+                add.skip(1)
+                if cap:
+                    cells = self.cap_cells
+                    add(cells, col, -dt * ev.extras["sensible_per_evaporation"][cells] * devap)
+                    if self.spec.cap_water.mode == "charge":
+                        add(self.i_w, col, dt * devap)
                 continue
             kap, g1 = c.surface_conductance[faces], c.surface_derivative[faces]
             t_s = c.surface_temperature[faces]
@@ -740,3 +783,39 @@ class DeviceProblem:
         add(self.i_mv, self.i_tb, -dt * dg_dt)
         add(self.i_mp, self.i_mv, dt * dg_dm)
         add(self.i_mp, self.i_tb, dt * dg_dt)
+
+
+class _Recorder:
+    """``KeptTriplets.add`` that also notes each block's length (the first, recording call)."""
+
+    def __init__(self, add):
+        self.add, self.lengths = add, []
+
+    def __call__(self, rows, cols, values) -> None:
+        self.add(rows, cols, values)
+        sizes = {np.size(rows), np.size(cols), np.size(values)} - {1}
+        self.lengths.append(sizes.pop() if sizes else 1)
+
+
+class _BlockWriter:
+    """The later calls' ``add``: each block's values written at its recorded place in the kept
+    assembly's values, in the recorded order (``KeptTriplets.add`` without its checks; the count
+    of blocks is checked at the end). A kernel writes its blocks from ``position`` and skips them."""
+
+    __slots__ = ("values", "ends", "block", "position")
+
+    def __init__(self, values: np.ndarray, ends: np.ndarray):
+        self.values, self.ends, self.block, self.position = values, ends, 0, 0
+
+    def __call__(self, rows, cols, values) -> None:
+        end = self.ends[self.block]
+        self.values[self.position:end] = values
+        self.position, self.block = end, self.block + 1
+
+    def skip(self, count: int) -> None:
+        self.block += count
+        self.position = self.ends[self.block - 1]
+
+    def finish(self) -> None:
+        if self.block != len(self.ends):
+            raise ValueError(f"device Jacobian: {self.block} blocks written, {len(self.ends)} recorded")

@@ -6,6 +6,8 @@ NumPy lines of ``DeviceProblem.evaluate`` it replaces; the tests compare them.
 """
 from __future__ import annotations
 
+import numpy as np
+
 from fvsolver.kernels import jit
 
 
@@ -48,3 +50,136 @@ def device_rates(T, conduction_rate, cells, volumes, charge, evaporation_total, 
         flow = inner_area[i] * condensation[i]
         wall_flow[i] = flow
         rate[first_inventory + i] = flow
+
+
+@jit
+def _block_sum(a, lo, n):
+    """NumPy's sum of a[lo:lo + n] for n <= 128: eight partial sums, then the rest in turn."""
+    if n < 8:
+        res = 0.0
+        for i in range(lo, lo + n):
+            res += a[i]
+        return res
+    r0, r1, r2, r3 = a[lo], a[lo + 1], a[lo + 2], a[lo + 3]
+    r4, r5, r6, r7 = a[lo + 4], a[lo + 5], a[lo + 6], a[lo + 7]
+    i = 8
+    end = n - n % 8
+    while i < end:
+        j = lo + i
+        r0 += a[j]
+        r1 += a[j + 1]
+        r2 += a[j + 2]
+        r3 += a[j + 3]
+        r4 += a[j + 4]
+        r5 += a[j + 5]
+        r6 += a[j + 6]
+        r7 += a[j + 7]
+        i += 8
+    res = ((r0 + r1) + (r2 + r3)) + ((r4 + r5) + (r6 + r7))
+    while i < n:
+        res += a[lo + i]
+        i += 1
+    return res
+
+
+@jit
+def pairwise_sum(a, lo, n):
+    """a[lo:lo + n].sum() as NumPy forms it (pairwise: halves split at a multiple of 8 down to
+    blocks of at most 128), so that a sum taken here is NumPy's bit for bit. The halves are walked
+    with a stack (a recursive kernel does not survive numba's cache)."""
+    if n <= 128:
+        return _block_sum(a, lo, n)
+    starts = np.empty(128, dtype=np.int64)
+    sizes = np.empty(128, dtype=np.int64)
+    done = np.zeros(128, dtype=np.bool_)
+    sums = np.empty(128)
+    top = 0
+    starts[0], sizes[0], done[0] = lo, n, False
+    depth = 0  # entries on the sums stack
+    while top >= 0:
+        start, size, split = starts[top], sizes[top], done[top]
+        top -= 1
+        if size <= 128:
+            sums[depth] = _block_sum(a, start, size)
+            depth += 1
+        elif split:  # both halves summed: combine them
+            depth -= 1
+            sums[depth - 1] = sums[depth - 1] + sums[depth]
+        else:
+            half = size // 2
+            half -= half % 8
+            top += 1
+            starts[top], sizes[top], done[top] = start, size, True
+            top += 1
+            starts[top], sizes[top], done[top] = start + half, size - half, False
+            top += 1
+            starts[top], sizes[top], done[top] = start, half, False
+    return sums[0]
+
+
+@jit
+def wall_jacobian(faces, kappa, g1, terms, area, dp_dm, per_tv, alpha0, dt, work, values, start):
+    """The condensing inner faces' entries of the device Jacobian, T_s eliminated per face (the
+    blocks of ``DeviceProblem.jacobian`` from (P, m_v) to (m_v, u), in its order and with its
+    operations): ten blocks written from values[start] on (nine of len(faces), then one entry).
+    kappa, g1 (n_boundary,), terms (n_boundary, OUTPUTS) of the evaluation; area (n_faces,);
+    work (2, n_faces). Returns sum(A dJ/dm_v) (NumPy's sum), the m_v row's diagonal part."""
+    m = faces.shape[0]
+    for i in range(m):
+        b = faces[i]
+        kap = kappa[b]
+        den = kap - g1[b]
+        tau = kap / den
+        lat = terms[b, 7]  # LATENT
+        dj_dt = terms[b, 4]  # DM
+        dj_dp = terms[b, 5]  # DM_DP
+        dj_dc = terms[b, 6]  # DM_DC
+        lat_dp = lat * dj_dp
+        dts_dp = lat_dp / den
+        dts_dc = lat * dj_dc / den
+        dJ_dT = dj_dt * tau
+        dJ_dm = (dj_dp + dj_dt * dts_dp) * dp_dm
+        dJ_dc = dj_dc + dj_dt * dts_dc
+        dt_area = dt * area[i]
+        out_area = -dt_area
+        out_kap = out_area * kap
+        flow_dc = dt_area * dJ_dc
+        values[start + i] = out_kap * dts_dp * dp_dm
+        values[start + m + i] = out_kap * dts_dc
+        values[start + 2 * m + i] = dt_area * dJ_dT
+        values[start + 3 * m + i] = flow_dc
+        values[start + 4 * m + i] = out_area * dJ_dT
+        values[start + 5 * m + i] = out_area * dJ_dm
+        values[start + 6 * m + i] = alpha0 * area[i] - flow_dc
+        dts_dtv = lat_dp * per_tv / den
+        dJ_dtv = dj_dp * per_tv + dj_dt * dts_dtv
+        values[start + 7 * m + i] = out_kap * dts_dtv
+        values[start + 8 * m + i] = out_area * dJ_dtv
+        work[0, i] = area[i] * dJ_dtv
+        work[1, i] = area[i] * dJ_dm
+    values[start + 9 * m] = dt * pairwise_sum(work[0], 0, m)
+    return pairwise_sum(work[1], 0, m)
+
+
+@jit
+def transfer_jacobian(faces, area, kappa, g1, t_s, terms, air_temperature, dh, cap, evaporation, dhm, h_m, dt, work,
+                      values, start):
+    """One outer group's entries of the outside coefficients' column (``DeviceProblem.
+    _transfer_coupling``: dq/dt_surf at fixed T_s, T_s eliminated per face), written at
+    values[start:start + len(faces)]; on the cap (``cap``) also the total evaporation's change,
+    returned (NumPy's sum; else 0). evaporation, work (n_faces,): the faces' m and a work array."""
+    m = faces.shape[0]
+    minus_dt = -dt
+    for i in range(m):
+        b = faces[i]
+        dq = (air_temperature - t_s[b]) * dh
+        if cap:
+            dq = dq - terms[b, 7] * evaporation[i] * dhm / h_m  # LATENT
+        den = kappa[b] - g1[b]
+        values[start + i] = minus_dt * area[i] * kappa[b] * dq / den
+        if cap:
+            dts = dq / den
+            work[i] = area[i] * (evaporation[i] * dhm / h_m + terms[b, 4] * dts)  # DM
+    if cap:
+        return pairwise_sum(work, 0, m)
+    return 0.0
