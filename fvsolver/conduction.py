@@ -178,7 +178,8 @@ class ConductionProblem:
         self._cells = [np.flatnonzero(mesh.cell_material == i) for i in range(len(self.materials))]
         self._fixed_per_cell = {}
         self._uniform_kept = {}  # attribute: (the materials' numbers, the per-cell array filled from them)
-        self._capacity_kept = None  # (rho c per cell, V rho c) of the last uniform rho c
+        self._capacity_kept = None  # (rho c per cell, V rho c, energy factors) of the last uniform rho c
+        self._energy_template = None  # (rho, c, materials filled per context) of _energy_factors, or ()
         self._kappa_kept = None  # (k, k_P / delta of the boundary faces) of the last conductivities
         self._boundary_cells = np.unique(mesh.boundary_cell)
         self._surface_guess: np.ndarray | None = None
@@ -339,17 +340,25 @@ class ConductionProblem:
         """(rho, c) per cell such that the stored energy per volume is rho (c (T - T_ref)), the
         products ``_per_cell(T, "volumetric_energy")`` forms (a material whose rho c is one number at
         the context: rho c and 1), or None where a material's c follows T."""
-        if "volumetric_energy" not in self._fixed_per_cell:
-            self._per_cell(np.full(self.n, REFERENCE_TEMPERATURE), "volumetric_energy", context)
-        base, varying, energy, uniform = self._fixed_per_cell["volumetric_energy"]
-        if base is not None or not uniform:
+        template = self._energy_template
+        if template is None:
+            if "volumetric_energy" not in self._fixed_per_cell:
+                self._per_cell(np.full(self.n, REFERENCE_TEMPERATURE), "volumetric_energy", context)
+            base, varying, energy, uniform = self._fixed_per_cell["volumetric_energy"]
+            rho, c = np.full(self.n, np.nan), np.ones(self.n)
+            if energy is not None:
+                rho[energy[0]], c[energy[0]] = energy[1], energy[2]
+            for _, cells in varying:
+                rho[cells] = 0.0
+            every = base is None and uniform and not np.isnan(rho).any()
+            template = self._energy_template = (rho, c, varying) if every else ()
+        if not template:
             return None
-        rho, c = np.full(self.n, np.nan), np.ones(self.n)
-        if energy is not None:
-            rho[energy[0]], c[energy[0]] = energy[1], energy[2]
+        rho, c, varying = template
+        rho = rho.copy()  # (the kept factors are never written to)
         for m, cells in varying:
             rho[cells] = m.uniform_properties(context)[1]
-        return (rho, c) if not np.isnan(rho).any() else None
+        return rho, c
 
     def _surface(self, T, time, k, context=None):
         """Surface temperatures, heat fluxes and their T_P derivatives on every boundary face, at
