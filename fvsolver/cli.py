@@ -317,6 +317,10 @@ INTERPRETED_CHECK_CELLS = 20_000
 
 
 def _check(args) -> int:
+    if args.program and "numpy" not in sys.modules:
+        # a check solves nothing: numpy's BLAS need not start its threads (about 25 ms of a check);
+        # only in a process of its own, and a user's own setting is kept
+        os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
     from fvsolver.case import load_case
 
     from fvsolver.case.limits import estimate

@@ -14,19 +14,20 @@ from dataclasses import dataclass, field
 from functools import cached_property
 
 import numpy as np
-import scipy.sparse as sp
 
 from fvsolver.boundary import (BoundaryData, Convection, HeatFlux, PatchCondition, _evaluate,
                                compile_boundary)
+from fvsolver.deferred import deferred
 from fvsolver.discretisation import Stencil, build_stencil
 from fvsolver.errors import CaseError
 from fvsolver.kernels import conduction as kern
 from fvsolver.kernels import surfaces as _ks
 from fvsolver.linear import with_data
 from fvsolver.materials import REFERENCE_TEMPERATURE, Material
-from fvsolver.mesh.core import Mesh
+from fvsolver.mesh.core import Mesh, distinct
 from fvsolver.surface_balance import SURFACE_ITERATIONS, solve_surface as _solve_surface, term_sum as _term_sum
 
+sp = deferred("scipy.sparse", "sp", globals())  # imported by the first Jacobian, not by a set-up
 
 
 # the per-cell properties a material's uniform_properties(context) gives, by index
@@ -181,7 +182,7 @@ class ConductionProblem:
         self._capacity_kept = None  # (rho c per cell, V rho c, energy factors) of the last uniform rho c
         self._energy_template = None  # (rho, c, materials filled per context) of _energy_factors, or ()
         self._kappa_kept = None  # (k, k_P / delta of the boundary faces) of the last conductivities
-        self._boundary_cells = np.unique(mesh.boundary_cell)
+        self._boundary_cells = distinct(mesh.boundary_cell)
         self._surface_guess: np.ndarray | None = None
         self._correction_cache = None
         self._capacity_cache = None

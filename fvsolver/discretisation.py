@@ -14,11 +14,14 @@ correction is skipped.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import cached_property
 
 import numpy as np
-import scipy.sparse as sp
 
-from fvsolver.mesh.core import Mesh
+from fvsolver.deferred import deferred
+from fvsolver.mesh.core import Mesh, distinct
+
+sp = deferred("scipy.sparse", "sp", globals())  # the pattern's matrix is formed when first asked for
 
 ORTHOGONAL_TOLERANCE = 1e-10  # |S - E| / |S| below this counts as orthogonal, at the least
 # how many times its own rounding bound a face's |S - E| / |S| must exceed to count as non-orthogonal
@@ -41,7 +44,9 @@ class Stencil:
     boundary_offset : (n_boundary, 2) m, from the cell centre to the foot of the face normal
     lsq_owner, lsq_neighbour : (n_faces, 2) 1/m, least-squares gradient weights
     lsq_boundary : (n_boundary, 2) 1/m (zero on symmetry faces, which act as mirrors)
-    pattern : CSR matrix holding the pattern (diagonal + face pairs)
+    pattern_indptr, pattern_indices : the pattern's (diagonal + face pairs) canonical CSR structure
+    pattern : that structure as a CSR matrix of zeros (formed when first read: a set-up that is
+        only checked never imports scipy.sparse)
     diag_pos, owner_pos, neighbour_pos : positions of (P,P), (P,N), (N,P) entries in ``pattern.data``
     """
 
@@ -56,12 +61,19 @@ class Stencil:
     lsq_owner: np.ndarray
     lsq_neighbour: np.ndarray
     lsq_boundary: np.ndarray
-    pattern: sp.csr_matrix
+    pattern_indptr: np.ndarray
+    pattern_indices: np.ndarray
     diag_pos: np.ndarray
     owner_pos: np.ndarray
     neighbour_pos: np.ndarray
     max_nonorthogonality_deg: float
     boundary_nonorthogonal: bool = False
+
+    @cached_property
+    def pattern(self) -> sp.csr_matrix:
+        n = self.pattern_indptr.size - 1
+        return sp.csr_matrix((np.zeros(self.pattern_indices.size), self.pattern_indices, self.pattern_indptr),
+                             shape=(n, n))
 
 
 def _dot(a: np.ndarray, b: np.ndarray) -> np.ndarray:
@@ -162,13 +174,10 @@ def build_stencil(mesh: Mesh, symmetry_faces: np.ndarray) -> Stencil:
     rows = np.concatenate([np.arange(ncell), mesh.owner, mesh.neighbour])
     cols = np.concatenate([np.arange(ncell), mesh.neighbour, mesh.owner])
     keys = rows * ncell + cols
-    uniq = np.unique(keys)
-    pattern = sp.csr_matrix(
-        (np.zeros(len(uniq)), (uniq // ncell, uniq % ncell)), shape=(ncell, ncell)
-    )
-    pattern.sort_indices()
-    csr_keys = np.repeat(np.arange(ncell), np.diff(pattern.indptr)) * ncell + pattern.indices
-    pos = np.searchsorted(csr_keys, keys)
+    uniq = distinct(keys)  # sorted: row by row, each row's columns ascending (canonical CSR)
+    indptr = np.zeros(ncell + 1, dtype=np.int32)
+    np.cumsum(np.bincount(uniq // ncell, minlength=ncell), out=indptr[1:])
+    pos = np.searchsorted(uniq, keys)
     nf = mesh.n_faces
     return Stencil(
         geometry=geometry,
@@ -182,7 +191,8 @@ def build_stencil(mesh: Mesh, symmetry_faces: np.ndarray) -> Stencil:
         lsq_owner=np.ascontiguousarray(lsq_owner),
         lsq_neighbour=np.ascontiguousarray(lsq_neighbour),
         lsq_boundary=np.ascontiguousarray(lsq_boundary),
-        pattern=pattern,
+        pattern_indptr=indptr,
+        pattern_indices=(uniq % ncell).astype(np.int32),
         diag_pos=pos[:ncell].copy(),
         owner_pos=pos[ncell:ncell + nf].copy(),
         neighbour_pos=pos[ncell + nf:].copy(),

@@ -33,10 +33,13 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 import numpy as np
-import scipy.sparse as sp
-import scipy.sparse.linalg as spla
 
+from fvsolver.deferred import deferred
 from fvsolver.errors import SolverError
+
+# imported by the first factorisation: a set-up that is only checked needs neither
+sp = deferred("scipy.sparse", "sp", globals())
+spla = deferred("scipy.sparse.linalg", "spla", globals())
 
 # MMD on A^T + A keeps the fill of these near-symmetric matrices about half of COLAMD's;
 # with SymmetricMode SuperLU prefers the diagonal pivots, which are dominant here.

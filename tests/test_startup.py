@@ -34,12 +34,26 @@ def test_help_loads_no_numerical_library(tmp_path):
     assert not loaded & set(HEAVY), sorted(loaded & set(HEAVY))
 
 
-def test_a_run_of_the_demo_needs_no_k_d_tree_for_its_mesh(tmp_path):
-    """The demo's mesh joins its blocks without scipy.spatial (0.14 s of every run's start-up)."""
+def test_a_check_of_the_demo_loads_no_scipy(tmp_path):
+    """A check sets the demo up and evaluates it once: its mesh joins its blocks without
+    scipy.spatial, its stencil keeps the Jacobian's pattern as plain arrays, and scipy.sparse
+    (about 0.3 s of imports) waits for the first Jacobian; numpy.ma (np.unique's and np.median's
+    masked-array check) is not loaded either."""
     demo = ROOT / "cases" / "demo.toml"
-    loaded = _modules_after(f"from fvsolver.cli import main\nassert main(['check', {str(demo)!r}, '-q']) == 0",
-                            tmp_path)
-    assert "fvsolver.mesh.core" in loaded and "scipy.spatial" not in loaded
+    loaded = _modules_after(f"import sys\nfrom fvsolver.cli import main\n"
+                            f"sys.argv = ['fvsolver', 'check', {str(demo)!r}, '-q']\nassert main() == 0", tmp_path)
+    assert {"fvsolver.mesh.core", "fvsolver.conduction", "fvsolver.linear"} <= loaded
+    assert not {m for m in loaded if m == "scipy" or m.startswith("scipy.")}  # (numba alone imports scipy)
+    assert not loaded & {"numba", "numpy.ma"}
+
+
+def test_a_deferred_module_is_imported_at_its_first_use_and_then_bound_itself(tmp_path):
+    code = ("import sys\nfrom fvsolver.deferred import deferred\n"
+            "cs = deferred('colorsys', 'cs', globals())\n"
+            "assert 'colorsys' not in sys.modules\n"
+            "assert cs.rgb_to_hsv(1.0, 0.0, 0.0) == (0.0, 1.0, 1.0)\n"
+            "assert cs is sys.modules['colorsys']\n")
+    assert "colorsys" in _modules_after(code, tmp_path)
 
 
 def test_check_of_a_bad_case_file_reports_before_loading_the_solver(tmp_path):

@@ -11,7 +11,7 @@ from fvsolver.case.loader import Case
 from fvsolver.conduction import ConductionProblem, VolumetricSource
 from fvsolver.materials import Material, TemperatureFunction
 from fvsolver.mesh import builders
-from fvsolver.mesh.core import Mesh
+from fvsolver.mesh.core import Mesh, distinct
 from fvsolver.mesh.head import device_head, two_layer_shell
 from fvsolver.stepper import StepperOptions
 
@@ -102,7 +102,7 @@ def field_times(case: Case) -> np.ndarray:
     listed = list(case["output"]["field_times"])
     if not listed and case["output"]["field_count"] > 0:
         listed = list(np.linspace(0.0, end, case["output"]["field_count"] + 1)[1:])
-    return np.unique(np.array([0.0, *listed, end]))
+    return distinct(np.array([0.0, *listed, end]))
 
 
 def build_device_spec(case: Case, mesh: Mesh):
@@ -239,5 +239,5 @@ def build(case: Case) -> Setup:
     if spec.cycle is not None:
         _check_tip(case, problem, initial)
     rewet = [w[0] for w in spec.cap_water.rewettings]
-    stops = np.unique(np.concatenate([stops, rewet]))
+    stops = distinct(np.concatenate([stops, rewet]))
     return Setup(mesh, problem, build_options(case), initial, case["time"]["end"], stops, spec)

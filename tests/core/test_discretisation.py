@@ -61,3 +61,27 @@ def test_centroids_are_accurate_and_within_their_rounding_bound(origin):
     # the bound is of the order of eps |x| (+ the cell size), not (|x| / h)^2 eps |x|
     reach = np.abs(corners).max(axis=(1, 2))
     assert np.all(bound <= 40 * np.finfo(float).eps * (reach + 1e-4))
+
+
+def test_the_stencils_pattern_and_positions_are_those_of_a_matrix_built_from_its_entries():
+    """The pattern's CSR structure is formed with numpy (a checked set-up imports no scipy.sparse);
+    scipy's own COO-to-CSR conversion of the diagonal and both entries of every face gives it back,
+    and each kept position holds its (row, column)."""
+    import scipy.sparse as sp
+
+    mesh = builders.warped_rectangle(0.02, 0.05, 7, 9, 1e-3)
+    st = build_stencil(mesh, _no_symmetry(mesh))
+    n = mesh.n_cells
+    rows = np.concatenate([np.arange(n), mesh.owner, mesh.neighbour])
+    cols = np.concatenate([np.arange(n), mesh.neighbour, mesh.owner])
+    expected = sp.csr_matrix((np.ones(rows.size), (rows, cols)), shape=(n, n))
+    expected.sum_duplicates()
+    expected.sort_indices()
+    assert st.pattern.has_canonical_format and st.pattern.shape == (n, n)
+    np.testing.assert_array_equal(st.pattern.indptr, expected.indptr)
+    np.testing.assert_array_equal(st.pattern.indices, expected.indices)
+    row_of = np.repeat(np.arange(n), np.diff(st.pattern.indptr))
+    for pos, r, c in ((st.diag_pos, np.arange(n), np.arange(n)), (st.owner_pos, mesh.owner, mesh.neighbour),
+                      (st.neighbour_pos, mesh.neighbour, mesh.owner)):
+        np.testing.assert_array_equal(row_of[pos], r)
+        np.testing.assert_array_equal(st.pattern.indices[pos], c)

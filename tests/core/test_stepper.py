@@ -260,3 +260,38 @@ def test_a_start_after_a_sudden_change_takes_the_first_step_its_error_allows(mon
     assert all(r >= 2 for r in fixed), fixed
     assert taken <= plain.counters.steps + 10
     assert stepper.y[0] == pytest.approx(plain.y[0], abs=1e-3)
+
+
+class Kinked(Relaxing):
+    """Relaxing towards a target that starts to climb at 3 per second at t = 1.3 s: a kink in
+    time that the steps must find (no stop time there), as a face drying out is found."""
+
+    def evaluate(self, y, t):
+        target = 1.0 + 3.0 * max(t - 1.3, 0.0)
+        x = y - target
+        return SimpleNamespace(rate=-self.lam * x - self.mu * x**3, slope=-self.lam - 3 * self.mu * x**2,
+                               inflow=lambda g: 0.0, gross=lambda g: 0.0)
+
+
+def test_a_step_taken_after_a_retake_does_not_grow_the_next_one(monkeypatch):
+    """After a rejected or failed try the accepted step keeps its length for the next step
+    (common practice: Hairer and Wanner's codes forbid growth right after a rejection); a step
+    grown from the retake's small error tends to be rejected in turn."""
+    tries = []
+    original = TimeStepper._try_step
+
+    def recorded(self, dt):
+        result = original(self, dt)
+        tries.append((dt, result is not None and result[2] <= 1.0))
+        return result
+
+    monkeypatch.setattr(TimeStepper, "_try_step", recorded)
+    stepper = TimeStepper(Kinked(lam=2.0, mu=0.0), np.array([1.0]), 0.0, 4.0,
+                          StepperOptions(scheme="bdf2", initial_step=0.05, tolerance=1e-4, max_step=1.0))
+    stepper.run()
+    after_retake = [(dt, tries[i + 2][0]) for i, (dt, ok) in enumerate(tries[1:-1])
+                    if ok and not tries[i][1]]
+    assert after_retake, tries  # the kink was found by a retake
+    grown_elsewhere = [b / a for (a, ok_a), (b, _) in zip(tries[:-1], tries[1:]) if ok_a and b > 1.25 * a]
+    assert grown_elsewhere  # steps do grow away from retakes
+    assert all(following <= dt * (1 + 1e-12) for dt, following in after_retake), after_retake

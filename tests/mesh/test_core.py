@@ -215,3 +215,16 @@ def test_close_pairs_and_merged_nodes_agree_with_scipy_k_d_tree_and_components(m
         assert np.array_equal(core.close_pairs(points, tol), expected)
         graph = coo_matrix((np.ones(len(expected)), (expected[:, 0], expected[:, 1])), shape=(len(points),) * 2)
         assert np.array_equal(core.merged_labels(points, tol), connected_components(graph, directed=False)[1])
+
+
+@pytest.mark.parametrize("values", [np.array([], dtype=np.int64), np.array([3]), np.array([2, 2, 2]),
+                                    np.random.default_rng(5).integers(0, 40, 500),
+                                    np.random.default_rng(6).normal(size=300).round(1),
+                                    np.array([[4, 1], [1, 9]])])
+def test_distinct_values_are_numpys_unique(values):
+    from fvsolver.mesh.core import distinct
+
+    got = distinct(values)
+    want = np.unique(values)
+    assert got.dtype == want.dtype
+    np.testing.assert_array_equal(got, want)
