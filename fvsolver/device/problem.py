@@ -195,11 +195,9 @@ class DeviceProblem:
         self._reservoir_share = self._cap_cell_volumes / self.cap_volume * spec.cap_water.water_heat_capacity
         self._sensible_slope = self._cap_cell_volumes * self.cap_material.porosity * (
             self.cap_material.water_volumetric_heat - 1.2 * 1006.0)
-        from fvsolver.kernels import COMPILED
-
-        # the cells' and inventories' rates in one compiled call (kernels.device), its twin the NumPy
-        # of _water_sensible and _rates
-        self._compiled_rates = COMPILED
+        # the cells' and inventories' rates in one compiled call (kernels.device) where numba's JIT is
+        # on; its twin is the NumPy of _rates and _water_sensible
+        self._compiled_rates = _kernels_compiled()
         self._energy_slope = getattr(self.cap_material, "energy_slope", 0.0)
         self.inner_area = mesh.boundary_areas[self.inner]
         self.outer_diameter = spec.room.diameter
@@ -783,6 +781,13 @@ class DeviceProblem:
         add(self.i_mv, self.i_tb, -dt * dg_dt)
         add(self.i_mp, self.i_mv, dt * dg_dm)
         add(self.i_mp, self.i_tb, dt * dg_dt)
+
+
+def _kernels_compiled() -> bool:
+    """Whether the kernels are compiled (read when asked: the tests switch it)."""
+    from fvsolver.kernels import COMPILED
+
+    return COMPILED
 
 
 class _Recorder:

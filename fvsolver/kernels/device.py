@@ -9,6 +9,8 @@ from __future__ import annotations
 import numpy as np
 
 from fvsolver.kernels import jit
+# the surface solve's output columns (a change there must touch this file too, or its cached kernels keep the old)
+from fvsolver.kernels.surfaces import DM, DM_DC, DM_DP, LATENT
 
 
 @jit
@@ -130,10 +132,10 @@ def wall_jacobian(faces, kappa, g1, terms, area, dp_dm, per_tv, alpha0, dt, work
         kap = kappa[b]
         den = kap - g1[b]
         tau = kap / den
-        lat = terms[b, 7]  # LATENT
-        dj_dt = terms[b, 4]  # DM
-        dj_dp = terms[b, 5]  # DM_DP
-        dj_dc = terms[b, 6]  # DM_DC
+        lat = terms[b, LATENT]
+        dj_dt = terms[b, DM]
+        dj_dp = terms[b, DM_DP]
+        dj_dc = terms[b, DM_DC]
         lat_dp = lat * dj_dp
         dts_dp = lat_dp / den
         dts_dc = lat * dj_dc / den
@@ -174,12 +176,12 @@ def transfer_jacobian(faces, area, kappa, g1, t_s, terms, air_temperature, dh, c
         b = faces[i]
         dq = (air_temperature - t_s[b]) * dh
         if cap:
-            dq = dq - terms[b, 7] * evaporation[i] * dhm / h_m  # LATENT
+            dq = dq - terms[b, LATENT] * evaporation[i] * dhm / h_m
         den = kappa[b] - g1[b]
         values[start + i] = minus_dt * area[i] * kappa[b] * dq / den
         if cap:
             dts = dq / den
-            work[i] = area[i] * (evaporation[i] * dhm / h_m + terms[b, 4] * dts)  # DM
+            work[i] = area[i] * (evaporation[i] * dhm / h_m + terms[b, DM] * dts)
     if cap:
         return pairwise_sum(work, 0, m)
     return 0.0
