@@ -274,16 +274,15 @@ class DeviceProblem:
         """Put a Newton iterate back into the unknowns' domain, in place: no inventory below zero.
         (On a drying face the step's equation c + a phi(c) = c_old is concave in c: Newton's
         iterates from below zero then climb to the root without overshooting it.)"""
-        c = y[self.i_c]
+        c = y[self._inventories]  # a view: clipped in place
         np.maximum(c, 0.0, out=c)
-        y[self.i_c] = c
 
     def jacobian_changes_fast(self, y: np.ndarray) -> bool:
         """True while an inner face is drying through its limiter's range (c_ref / 100 < c < 100
         c_ref): its inventory row's Jacobian then changes by large factors between iterates, and
         Newton needs it afresh every iteration."""
         cr = self.wall_term.film_reference
-        c = y[self.i_c]
+        c = y[self._inventories]
         return bool(((c > 1e-2 * cr) & (c < 1e2 * cr)).any())
 
     @property
