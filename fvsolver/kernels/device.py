@@ -1,8 +1,16 @@
-"""The device's per-cell terms of an evaluation in one compiled loop (numba).
+"""The device's per-cell terms of an evaluation and the heavy blocks of its Jacobian (numba).
+
+``device_rates`` forms the water's sensible enthalpy, the cells' rates and the inner faces' mass
+flows (its twin: ``DeviceProblem._water_sensible`` and the NumPy lines of ``_rates``);
+``wall_jacobian`` and ``transfer_jacobian`` write the condensing faces' blocks and the outside
+coefficients' column straight into a kept assembly's values (their twins: the same blocks given
+to ``linear.KeptTriplets`` in ``DeviceProblem._wall_jacobian`` and ``_transfer_coupling``). Every
+operation is the NumPy lines' own, in their order, and a sum is NumPy's pairwise sum
+(``pairwise_sum``), so the values are the same bit for bit; tests/device/test_device_kernels.py
+compares them.
 
 Short symbols only here: P a cap cell, v its volume (m3), E the total evaporation (kg/s), W the
-cap's pore-water capacity (kg). The Python twin is ``DeviceProblem._water_sensible`` and the
-NumPy lines of ``DeviceProblem.evaluate`` it replaces; the tests compare them.
+cap's pore-water capacity (kg), m the number of faces.
 """
 from __future__ import annotations
 
