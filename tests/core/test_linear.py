@@ -263,3 +263,29 @@ def test_the_kept_row_scaling_gives_row_scale_bit_for_bit(rng):
     assert scaling._weak[3]
     dominant = sp.identity(8, format="csc")
     assert _RowScaling(dominant)(dominant.data) is None and row_scale(dominant) is None
+
+
+def test_column_by_column_factors_have_superlus_default_pivots_fill_and_solutions(rng):
+    """SPLU_OPTIONS factorise column by column (panel_size 1, no relaxed supernodes) for speed:
+    on a 2-D five-point matrix with a few dense border rows and columns, the same row pivots and
+    fill as SuperLU's own panel and supernode sizes, and the same solution to round-off."""
+    import scipy.sparse.linalg as spla
+
+    from fvsolver.linear import SPLU_OPTIONS
+
+    nx, ny, k = 30, 20, 4
+    lap = sp.kronsum(sp.diags([-1.0, 2.2, -1.0], [-1, 0, 1], shape=(nx, nx)),
+                     sp.diags([-1.0, 2.2, -1.0], [-1, 0, 1], shape=(ny, ny)))
+    border = sp.random(nx * ny, k, density=0.05, random_state=3)
+    a = sp.bmat([[lap, border], [border.T, -sp.identity(k)]], format="csc")
+    a.data *= 1.0 + 0.1 * rng.random(a.nnz)  # unsymmetric values on the symmetric pattern
+    defaults = {key: value for key, value in SPLU_OPTIONS.items() if key not in ("panel_size", "relax")}
+    assert SPLU_OPTIONS["panel_size"] == 1 and SPLU_OPTIONS["relax"] == 1
+    tuned, plain = spla.splu(a, **SPLU_OPTIONS), spla.splu(a, **defaults)
+    np.testing.assert_array_equal(tuned.perm_r, plain.perm_r)
+    np.testing.assert_array_equal(tuned.perm_c, plain.perm_c)
+    assert tuned.L.nnz + tuned.U.nnz == plain.L.nnz + plain.U.nnz
+    b = rng.normal(size=a.shape[0])
+    x = tuned.solve(b)
+    np.testing.assert_allclose(x, plain.solve(b), rtol=0, atol=1e-13 * np.abs(x).max())
+    np.testing.assert_allclose(a @ x, b, rtol=0, atol=1e-11 * np.abs(b).max())
