@@ -635,7 +635,17 @@ def _compiled_surfaces(flux_groups, n_boundary: int):
     then the terms' own NumPy ``heat_flux`` are solved by ``surface_balance.solve_surface``)."""
     from fvsolver.kernels import COMPILED
 
-    groups = [(c.terms[0], f) for c, f in flux_groups if _compilable(c)]
+    groups = []
+    for c, f in flux_groups:
+        if not _compilable(c):
+            continue
+        # patches with equal terms share one group (one parameter update per evaluation); the faces
+        # are solved one by one, so their order changes nothing
+        same = next((i for i, (term, _) in enumerate(groups) if _same_term(term, c.terms[0])), None)
+        if same is None:
+            groups.append((c.terms[0], f))
+        else:
+            groups[same] = (groups[same][0], np.concatenate([groups[same][1], f]))
     if not groups or not COMPILED:
         return None
     fluid = np.zeros(_ks.FLUID_CONSTANTS)
@@ -646,6 +656,19 @@ def _compiled_surfaces(flux_groups, n_boundary: int):
     water, water_latent = _ks.water_constants()
     return _CompiledSurfaces(tuple(groups), np.concatenate([f for _, f in groups]), kinds, fluid, water,
                              water_latent)
+
+
+def _same_term(a, b) -> bool:
+    """Whether two boundary terms are the same (one object, or equal data; terms holding arrays
+    are taken as different)."""
+    if a is b:
+        return True
+    if type(a) is not type(b):
+        return False
+    try:
+        return bool(a == b)
+    except (ValueError, TypeError):
+        return False
 
 
 def heat_flux_vectors(problem: ConductionProblem, T: np.ndarray, ev: Evaluation) -> np.ndarray:

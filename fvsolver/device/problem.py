@@ -379,7 +379,7 @@ class DeviceProblem:
         transfer = self.head_transfer
         h, h_m = transfer.coefficients(transfer.clip(t_mean))
         inventory = np.zeros(self.mesh.n_boundary)
-        inventory[self.inner] = y[self.i_c]
+        inventory[self.inner] = y[self._inventories]
         # the head's vapour pressure and temperature, as pressures() gives them
         t_v = self.vapour_temperature(T)
         vap = self.spec.vapour
