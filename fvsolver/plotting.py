@@ -2,6 +2,7 @@
 from __future__ import annotations
 
 import io
+import re
 from collections.abc import Mapping, Sequence
 from pathlib import Path
 from typing import TYPE_CHECKING
@@ -618,17 +619,23 @@ def _text_width(fig, text: str, fontsize: float) -> float:
     return Text(0, 0, text, fontsize=fontsize, figure=fig).get_window_extent(fig.canvas.get_renderer()).width
 
 
+# a number and the short unit after it ("24 C", "45 %", "0.2 m/s") stay on one line
+_NUMBER_AND_UNIT = re.compile(r"(?<=\d) (?=(?:%|°\w?|[A-Za-z]{1,3}(?:/\w{1,2})?)(?![\w/]))")
+
+
 def _wrapped(fig, text: str, fontsize: float) -> str:
-    """``text`` broken at spaces into lines that each fit the title's share of ``fig``'s width."""
+    """``text`` broken at spaces into lines that each fit the title's share of ``fig``'s width
+    (never between a number and its unit)."""
     import textwrap
 
     room = _TITLE_ROOM * fig.get_figwidth() * fig.dpi
     if _text_width(fig, text, fontsize) <= room:
         return text
+    glued = _NUMBER_AND_UNIT.sub("\u00a0", text.replace("\u00a0", " "))  # (textwrap never breaks at U+00A0)
     chars = len(text)  # the most characters a line may hold: shrink until every line fits
     while chars > 8:
         chars = max(8, int(chars * 0.9))
-        lines = textwrap.wrap(text, chars, break_long_words=True)
+        lines = [line.replace("\u00a0", " ") for line in textwrap.wrap(glued, chars, break_long_words=True)]
         if all(_text_width(fig, line, fontsize) <= room for line in lines):
             return "\n".join(lines)
     return "\n".join(textwrap.wrap(text, 8))

@@ -228,3 +228,23 @@ def test_history_plot_rejects_bad_columns(tmp_path):
             {"time_s": h["time_s"], "pressure_drop_pa": h["pressure_drop_pa"][:-1]}, tmp_path / "b.png"
         )
     assert not list(tmp_path.iterdir())
+
+
+def test_a_wrapped_title_keeps_each_number_with_its_unit():
+    """The demo's title used to break as "... in a 24" / "C, 45 % room": a line break never falls
+    between a number and the short unit after it, and the text is otherwise unchanged."""
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+
+    text = "Demo: dichloromethane head with a wet felt cap in a 24 C, 45 % room, air 0.20 m/s, 647 Pa"
+    wrapped = 0
+    for width in np.arange(2.5, 6.01, 0.25):
+        fig = Figure(figsize=(width, 3.0), dpi=100)
+        FigureCanvasAgg(fig)
+        for size in (10.0, 12.0, 14.0):
+            lines = plotting._wrapped(fig, text, size).split("\n")
+            wrapped += len(lines) > 1
+            assert " ".join(lines) == text
+            for before, after in zip(lines, lines[1:]):
+                assert not (before[-1].isdigit() and after.split()[0].rstrip(",") in ("C", "%", "m/s", "Pa")), lines
+    assert wrapped >= 30
