@@ -8,8 +8,10 @@ from __future__ import annotations
 import os
 import sys
 
-# One set of flags for the whole wing.  cache=True keeps the compiled kernels on disk;
-# every kernel and helper lives in one module so the cache cannot go stale across modules.
+# One set of flags for the whole wing.  cache=True keeps the compiled kernels on disk.  numba's cache
+# checks only a kernel's own file: a kernel that calls one from another module of the wing (the
+# fused evaluation calls the conduction loops) keeps the old callee until its own file changes,
+# so after editing a called kernel clear __pycache__/*.nbi (the twin tests catch a stale one).
 JIT_OPTIONS = dict(cache=True, nogil=True, fastmath=False, boundscheck=False)
 
 if "numba" not in sys.modules and os.environ.get("NUMBA_DISABLE_JIT", "0").strip() not in ("", "0"):

@@ -19,6 +19,7 @@ from __future__ import annotations
 import numpy as np
 
 from fvsolver.kernels import jit
+from fvsolver.kernels.conduction import cell_gradients, correction_flux_sum, face_flux_sum
 from fvsolver.kernels.properties import if97_with_slope as _if97
 
 # kinds of face
@@ -230,9 +231,9 @@ def evaluate_heat_rate(T, g, owner, neighbour, boundary_cell, boundary_areas, co
     coupled faces (``faces``) and term-less (insulated) faces: the two-point face fluxes
     (``kernels.conduction.face_flux_sum``), the coupled faces' surface solve
     (``solve_boundary_faces`` at the cells' own temperatures), with ``correct`` the least-squares
-    gradients and the non-orthogonal correction (``cell_gradients``, ``correction_flux_sum``), and
-    the boundary faces' heat and dq/dT_P summed into their cells (the NumPy bincounts), each in the
-    order of the calls it replaces, so the values are theirs bit for bit.
+    gradients and the non-orthogonal correction (``cell_gradients``, ``correction_flux_sum``, called
+    here), and the boundary faces' heat and dq/dT_P summed into their cells (the NumPy bincounts),
+    each in the order of the calls it replaces, so the values are theirs bit for bit.
 
     T (n,); g, owner, neighbour, face_k, weight_owner (n_faces,), tangent, lsq_owner, lsq_neighbour
     (n_faces, 2); boundary_cell, boundary_areas, kappa, guess (n_boundary,) (guess empty: start at
@@ -246,12 +247,7 @@ def evaluate_heat_rate(T, g, owner, neighbour, boundary_cell, boundary_areas, co
         rate[i] = 0.0
         bjac[i] = 0.0
         work[i] = 0.0
-    for f in range(owner.shape[0]):
-        p = owner[f]
-        nn = neighbour[f]
-        flux = g[f] * (T[nn] - T[p])
-        rate[p] += flux
-        rate[nn] -= flux
+    face_flux_sum(T, owner, neighbour, g, rate)
     for b in range(nb):
         t_s[b] = T[boundary_cell[b]]
         q[b] = 0.0
@@ -262,31 +258,8 @@ def evaluate_heat_rate(T, g, owner, neighbour, boundary_cell, boundary_areas, co
     solve_boundary_faces(kinds, params, faces, kappa, t_s, guess, fluid, water, water_latent, t_s, q, dq_dtp, g1,
                          terms)
     if correct:
-        for i in range(n):
-            grad[i, 0] = 0.0
-            grad[i, 1] = 0.0
-        for f in range(owner.shape[0]):
-            p = owner[f]
-            nn = neighbour[f]
-            dt = T[nn] - T[p]
-            grad[p, 0] += lsq_owner[f, 0] * dt
-            grad[p, 1] += lsq_owner[f, 1] * dt
-            grad[nn, 0] += lsq_neighbour[f, 0] * dt
-            grad[nn, 1] += lsq_neighbour[f, 1] * dt
-        for b in range(nb):
-            p = boundary_cell[b]
-            dt = t_s[b] - T[p]
-            grad[p, 0] += lsq_boundary[b, 0] * dt
-            grad[p, 1] += lsq_boundary[b, 1] * dt
-        for f in range(owner.shape[0]):
-            p = owner[f]
-            nn = neighbour[f]
-            w = weight_owner[f]
-            gx = w * grad[p, 0] + (1.0 - w) * grad[nn, 0]
-            gy = w * grad[p, 1] + (1.0 - w) * grad[nn, 1]
-            flux = face_k[f] * (gx * tangent[f, 0] + gy * tangent[f, 1])
-            rate[p] += flux
-            rate[nn] -= flux
+        cell_gradients(T, owner, neighbour, lsq_owner, lsq_neighbour, boundary_cell, lsq_boundary, t_s, grad)
+        correction_flux_sum(grad, owner, neighbour, face_k, weight_owner, tangent, rate)
     # the boundary's sums per cell first, then added (as rate += np.bincount(...))
     for b in range(nb):
         heat = boundary_areas[b] * q[b]
